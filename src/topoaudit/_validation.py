@@ -1,0 +1,128 @@
+"""Declarative parameter checks: one constraint table per class or public function.
+
+A constraint table maps each parameter name to a list of accepted forms; a value is
+accepted when it matches any of them. :func:`check_params` enforces a table and raises
+one :class:`~topoaudit.errors.ParameterError` whose message names the owner, the
+parameter, what is allowed and the value received.
+"""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from topoaudit.errors import ParameterError
+
+__all__ = ["Choice", "Interval", "Kind", "check_params", "random_generator"]
+
+
+@dataclass(frozen=True)
+class Interval:
+    """Numbers of ``type`` between ``low`` and ``high`` (``None`` means unbounded).
+
+    ``closed`` is one of ``"both"``, ``"left"``, ``"right"``, ``"neither"``.
+    """
+
+    type: type
+    low: float | None
+    high: float | None
+    closed: str = "both"
+
+    def accepts(self, value: Any) -> bool:
+        if isinstance(value, bool):
+            return False
+        if self.type is numbers.Integral or self.type is int:
+            if not isinstance(value, numbers.Integral):
+                return False
+        elif not isinstance(value, numbers.Real):
+            return False
+        if isinstance(value, float) and not np.isfinite(value):
+            return False
+        left = self.closed in ("both", "left")
+        right = self.closed in ("both", "right")
+        if self.low is not None and (value < self.low or (value == self.low and not left)):
+            return False
+        return not (
+            self.high is not None and (value > self.high or (value == self.high and not right))
+        )
+
+    def describe(self) -> str:
+        kind = "an int" if self.type in (int, numbers.Integral) else "a number"
+        lo = "-inf" if self.low is None else f"{self.low:g}"
+        hi = "inf" if self.high is None else f"{self.high:g}"
+        lb = "[" if self.closed in ("both", "left") and self.low is not None else "("
+        rb = "]" if self.closed in ("both", "right") and self.high is not None else ")"
+        return f"{kind} in the range {lb}{lo}, {hi}{rb}"
+
+
+@dataclass(frozen=True)
+class Choice:
+    """One of a fixed set of values (strings, usually)."""
+
+    options: tuple[Any, ...]
+
+    def accepts(self, value: Any) -> bool:
+        return any(value == o and type(value) is type(o) for o in self.options)
+
+    def describe(self) -> str:
+        return "one of " + ", ".join(repr(o) for o in self.options)
+
+
+@dataclass(frozen=True)
+class Kind:
+    """Any value for which ``test`` is true; ``label`` says what that means."""
+
+    test: Callable[[Any], bool]
+    label: str
+
+    def accepts(self, value: Any) -> bool:
+        return bool(self.test(value))
+
+    def describe(self) -> str:
+        return self.label
+
+
+NONE = Kind(lambda v: v is None, "None")
+
+
+def check_params(owner: str, table: Mapping[str, list[Any]], params: Mapping[str, Any]) -> None:
+    """Raise :class:`ParameterError` for the first parameter that no constraint accepts.
+
+    Examples
+    --------
+    >>> check_params("Cover", {"n_intervals": [Interval(int, 1, None)]}, {"n_intervals": 0})
+    Traceback (most recent call last):
+    ...
+    topoaudit.errors.ParameterError: The 'n_intervals' parameter of Cover must be an int in \
+the range [1, inf); got 0.
+    """
+    for name, constraints in table.items():
+        if name not in params:
+            continue
+        value = params[name]
+        if any(c.accepts(value) for c in constraints):
+            continue
+        allowed = " or ".join(c.describe() for c in constraints)
+        msg = f"The {name!r} parameter of {owner} must be {allowed}; got {value!r}."
+        raise ParameterError(msg)
+
+
+def random_generator(random_state: int | np.random.Generator | None) -> np.random.Generator:
+    """Turn ``random_state`` (an int seed, a Generator or None) into a Generator."""
+    if isinstance(random_state, np.random.Generator):
+        return random_state
+    if random_state is None or isinstance(random_state, numbers.Integral):
+        return np.random.default_rng(None if random_state is None else int(random_state))
+    msg = f"random_state must be an int, a numpy Generator or None; got {random_state!r}."
+    raise ParameterError(msg)
+
+
+def seed_from(random_state: int | np.random.Generator | None) -> int:
+    """A 32-bit int seed for code that wants an int (scikit-learn estimators)."""
+    if isinstance(random_state, numbers.Integral) and not isinstance(random_state, bool):
+        return int(random_state) % (2**32)
+    return int(random_generator(random_state).integers(0, 2**32 - 1))

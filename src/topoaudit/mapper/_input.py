@@ -1,0 +1,83 @@
+"""Turn what a user passes as ``X`` into a finite float matrix, or say exactly why not."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from topoaudit.errors import DataError
+
+__all__ = ["as_matrix", "describe_rows"]
+
+
+def describe_rows(rows: np.ndarray, limit: int = 5) -> str:
+    """``"rows 3, 17 and 2 more"`` for an array of row positions."""
+    rows = np.asarray(rows)
+    shown = ", ".join(str(int(r)) for r in rows[:limit])
+    more = f" and {rows.size - limit} more" if rows.size > limit else ""
+    return f"row{'s' if rows.size > 1 else ''} {shown}{more}"
+
+
+def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
+    """Return ``X`` as a C-contiguous 2-D float64 array with finite values.
+
+    Accepts a numpy array (1-D is read as one column) or a pandas DataFrame with
+    numeric columns. Raises :class:`DataError` naming the offending column or rows.
+    """
+    columns: list[str] | None = None
+    if hasattr(X, "dtypes") and hasattr(X, "columns"):
+        columns = [str(c) for c in X.columns]
+        if len(set(columns)) != len(columns):
+            dup = sorted({c for c in columns if columns.count(c) > 1})
+            msg = f"{name} has duplicated column names {dup}; each column needs a unique name."
+            raise DataError(msg)
+        for col, dtype in zip(columns, X.dtypes, strict=True):
+            if dtype == bool or not np.issubdtype(np.dtype(dtype), np.number):
+                msg = (
+                    f"Column {col!r} of {name} has non-numeric type {dtype}; the graph needs "
+                    "numeric columns (encode categories first)."
+                )
+                raise DataError(msg)
+        X = X.to_numpy()
+    try:
+        arr = np.asarray(X)
+    except Exception as exc:  # ragged lists and other objects numpy cannot hold
+        msg = f"{name} cannot be read as a numeric matrix: {exc}."
+        raise DataError(msg) from exc
+    if arr.dtype == object or not (
+        np.issubdtype(arr.dtype, np.number) or arr.dtype == np.bool_
+    ):
+        msg = f"{name} has non-numeric values (dtype {arr.dtype}); a numeric matrix is needed."
+        raise DataError(msg)
+    if np.iscomplexobj(arr):
+        msg = f"{name} has complex values; real numbers are needed."
+        raise DataError(msg)
+    if arr.ndim == 1:
+        arr = arr.reshape(-1, 1)
+    if arr.ndim != 2:
+        msg = f"{name} must be 2-D (rows x features); got an array with {arr.ndim} dimensions."
+        raise DataError(msg)
+    if arr.shape[0] == 0:
+        msg = f"{name} has no rows; at least {min_rows} row{'s' if min_rows > 1 else ''} needed."
+        raise DataError(msg)
+    if arr.shape[1] == 0:
+        msg = f"{name} has no columns; at least one numeric feature is needed."
+        raise DataError(msg)
+    if arr.shape[0] < min_rows:
+        msg = f"{name} has {arr.shape[0]} rows; at least {min_rows} are needed."
+        raise DataError(msg)
+    arr = np.ascontiguousarray(arr, dtype=np.float64)
+    finite = np.isfinite(arr)
+    if not finite.all():
+        bad_rows = np.flatnonzero(~finite.all(axis=1))
+        bad_cols = np.flatnonzero(~finite.all(axis=0))
+        where = ", ".join(
+            repr(columns[c]) if columns else str(int(c)) for c in bad_cols[:5]
+        )
+        msg = (
+            f"{name} has NaN or infinite values in {describe_rows(bad_rows)} "
+            f"(column{'s' if bad_cols.size > 1 else ''} {where}); only finite values are accepted."
+        )
+        raise DataError(msg)
+    return arr

@@ -1,0 +1,432 @@
+"""The Mapper graph and its builder.
+
+Given rows ``X``, a filter function ``f``, a cover of ``f(X)`` and a clusterer, the
+Mapper graph (Singh, Mémoli and Carlsson, 2007) has one node per cluster found inside
+each cover element, and an edge between two nodes that share at least one row: the
+1-skeleton of the nerve of the cover of ``X`` by those clusters.
+
+Node ids are stable: nodes are numbered in the lexicographic order of their cover
+element, and within an element in the order of each cluster's first row (noise
+singletons, if any, after the clusters, by row). The same data and settings always give
+the same ids.
+"""
+
+from __future__ import annotations
+
+import json
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from topoaudit._validation import Choice, Interval, Kind, check_params
+from topoaudit.errors import DataError, TopoauditError, unknown_name
+from topoaudit.mapper._input import as_matrix
+from topoaudit.mapper.clustering import Clusterer, make_clusterer, relabel
+from topoaudit.mapper.cover import COVERS
+from topoaudit.mapper.executor import ProcessExecutor, make_executor
+from topoaudit.mapper.filters import make_filter
+
+__all__ = ["ClusteringError", "MapperBuilder", "MapperGraph", "nerve"]
+
+
+class ClusteringError(TopoauditError, RuntimeError):
+    """The clusterer failed on one cover element."""
+
+
+def nerve(members: list[np.ndarray] | tuple[np.ndarray, ...], n_rows: int) -> tuple[np.ndarray, np.ndarray]:
+    """Edges between nodes that share rows, and how many rows each pair shares.
+
+    Built from the inverted index row -> nodes: memberships are sorted by row, and every
+    pair of nodes holding the same row is emitted once per shared row, then counted. The
+    cost is O(M log M + P) for M memberships and P emitted pairs; node pairs that share no
+    row are never looked at.
+
+    Returns
+    -------
+    edges : ndarray of shape (n_edges, 2), pairs ``i < j`` in lexicographic order
+    shared : ndarray of shape (n_edges,), rows shared by each pair
+
+    Examples
+    --------
+    >>> e, s = nerve([np.array([0, 1, 2]), np.array([2, 3]), np.array([1, 2, 4])], n_rows=5)
+    >>> e.tolist(), s.tolist()
+    ([[0, 1], [0, 2], [1, 2]], [1, 2, 1])
+    """
+    n_nodes = len(members)
+    if n_nodes == 0:
+        return np.zeros((0, 2), dtype=np.int64), np.zeros(0, dtype=np.int64)
+    sizes = np.fromiter((m.size for m in members), dtype=np.int64, count=n_nodes)
+    rows = np.concatenate([np.asarray(m, dtype=np.int64) for m in members])
+    nodes = np.repeat(np.arange(n_nodes, dtype=np.int64), sizes)
+    order = np.lexsort((nodes, rows))
+    rows, nodes = rows[order], nodes[order]
+    keys = []
+    offset = 1
+    while offset < rows.size:
+        same = rows[offset:] == rows[:-offset]
+        if not same.any():
+            break
+        a = nodes[:-offset][same]
+        b = nodes[offset:][same]
+        keys.append(a * n_nodes + b)
+        offset += 1
+    if not keys:
+        return np.zeros((0, 2), dtype=np.int64), np.zeros(0, dtype=np.int64)
+    uniq, counts = np.unique(np.concatenate(keys), return_counts=True)
+    edges = np.column_stack([uniq // n_nodes, uniq % n_nodes])
+    return edges, counts.astype(np.int64)
+
+
+@dataclass(frozen=True, eq=False)
+class MapperGraph:
+    """A Mapper graph: nodes with their member rows, and the edges of the nerve.
+
+    Attributes
+    ----------
+    n_rows : int
+        Rows of the data the graph was built from.
+    members : tuple of ndarray
+        Sorted row positions of each node.
+    node_element : ndarray of shape (n_nodes, d)
+        Interval index (per filter dimension) of the cover element each node came from.
+    node_filter : ndarray of shape (n_nodes, d)
+        Mean filter value of each node's rows.
+    edges, edge_shared, edge_jaccard : ndarray
+        Node pairs ``i < j``, rows they share, and ``shared / |union|``.
+    """
+
+    n_rows: int
+    members: tuple[np.ndarray, ...]
+    node_element: np.ndarray
+    node_filter: np.ndarray
+    edges: np.ndarray
+    edge_shared: np.ndarray
+    edge_jaccard: np.ndarray
+    settings: dict[str, Any] = field(default_factory=dict)
+
+    @classmethod
+    def from_members(
+        cls,
+        members: list[np.ndarray],
+        n_rows: int,
+        *,
+        node_element: np.ndarray | None = None,
+        node_filter: np.ndarray | None = None,
+        settings: dict[str, Any] | None = None,
+    ) -> MapperGraph:
+        """Build a graph from node memberships, computing the nerve."""
+        members_t = tuple(np.sort(np.asarray(m, dtype=np.int64)) for m in members)
+        edges, shared = nerve(members_t, n_rows)
+        sizes = np.fromiter((m.size for m in members_t), dtype=np.int64, count=len(members_t))
+        if edges.size:
+            union = sizes[edges[:, 0]] + sizes[edges[:, 1]] - shared
+            jaccard = shared / union
+        else:
+            jaccard = np.zeros(0)
+        n = len(members_t)
+        return cls(
+            n_rows=int(n_rows),
+            members=members_t,
+            node_element=np.zeros((n, 1), np.int64) if node_element is None else node_element,
+            node_filter=np.zeros((n, 1)) if node_filter is None else node_filter,
+            edges=edges,
+            edge_shared=shared,
+            edge_jaccard=jaccard,
+            settings=dict(settings or {}),
+        )
+
+    @property
+    def n_nodes(self) -> int:
+        return len(self.members)
+
+    @property
+    def n_edges(self) -> int:
+        return int(self.edges.shape[0])
+
+    @property
+    def node_sizes(self) -> np.ndarray:
+        return np.fromiter((m.size for m in self.members), dtype=np.int64, count=self.n_nodes)
+
+    def row_nodes(self) -> tuple[np.ndarray, np.ndarray]:
+        """The inverted index as CSR arrays: nodes of row ``r`` are
+        ``indices[indptr[r]:indptr[r + 1]]``."""
+        sizes = self.node_sizes
+        rows = np.concatenate(self.members) if self.n_nodes else np.zeros(0, np.int64)
+        nodes = np.repeat(np.arange(self.n_nodes, dtype=np.int64), sizes)
+        order = np.lexsort((nodes, rows))
+        indptr = np.zeros(self.n_rows + 1, dtype=np.int64)
+        np.cumsum(np.bincount(rows, minlength=self.n_rows), out=indptr[1:])
+        return indptr, nodes[order]
+
+    def covered_rows(self) -> np.ndarray:
+        """Boolean mask of rows that lie in at least one node."""
+        mask = np.zeros(self.n_rows, dtype=bool)
+        for m in self.members:
+            mask[m] = True
+        return mask
+
+    def to_networkx(self) -> Any:
+        """A ``networkx.Graph`` with node attributes ``size``, ``element`` and edge
+        attributes ``shared`` and ``jaccard``."""
+        import networkx as nx
+
+        g = nx.Graph()
+        for i, m in enumerate(self.members):
+            g.add_node(i, size=int(m.size), element=tuple(int(v) for v in self.node_element[i]))
+        for (a, b), s, j in zip(self.edges, self.edge_shared, self.edge_jaccard, strict=True):
+            g.add_edge(int(a), int(b), shared=int(s), jaccard=float(j))
+        return g
+
+    def node_link(self, *, include_members: bool = False) -> dict[str, Any]:
+        """A JSON-ready node-link description (no row ids unless asked for)."""
+        nodes = []
+        for i, m in enumerate(self.members):
+            node: dict[str, Any] = {
+                "id": i,
+                "size": int(m.size),
+                "element": [int(v) for v in self.node_element[i]],
+                "filter_mean": [_round(v) for v in self.node_filter[i]],
+            }
+            if include_members:
+                node["members"] = [int(r) for r in m]
+            nodes.append(node)
+        links = [
+            {"source": int(a), "target": int(b), "shared": int(s), "jaccard": _round(j)}
+            for (a, b), s, j in zip(self.edges, self.edge_shared, self.edge_jaccard, strict=True)
+        ]
+        return {"n_rows": self.n_rows, "settings": self.settings, "nodes": nodes, "links": links}
+
+    def write_node_link(self, path: str | Path, *, include_members: bool = False) -> Path:
+        """Write :meth:`node_link` as sorted, indented JSON to ``path``."""
+        path = Path(path)
+        text = json.dumps(self.node_link(include_members=include_members), sort_keys=True, indent=1)
+        path.write_text(text + "\n", encoding="utf-8")
+        return path
+
+
+def _round(value: float, digits: int = 10) -> float:
+    """Round to ``digits`` significant digits, for stable JSON."""
+    v = float(value)
+    return 0.0 if v == 0 else float(f"{v:.{digits}g}")
+
+
+def _cluster_task(X_sub: np.ndarray, clusterer: Clusterer) -> tuple[np.ndarray, float]:
+    """Cluster one cover element: a pure function of its data and the clusterer."""
+    if X_sub.shape[0] < clusterer.min_rows:
+        return np.zeros(X_sub.shape[0], dtype=np.int64), 0.0
+    labels = clusterer.fit_predict(X_sub)
+    return relabel(np.asarray(labels)), float(clusterer.fit_seconds_)
+
+
+_CLUSTERER_SPEC = Kind(
+    lambda v: isinstance(v, str | Clusterer) or hasattr(v, "fit_predict"),
+    "a clusterer name or an object with fit_predict",
+)
+
+
+class MapperBuilder:
+    """Build the Mapper graph of a data set.
+
+    Parameters
+    ----------
+    filter : str, Filter, transformer, callable or array, default="pca"
+        The filter function (see :func:`topoaudit.mapper.filters.make_filter`).
+    filter_params : dict or None, default=None
+        Parameters for a filter given by name.
+    cover : {"uniform", "balanced"} or cover object, default="uniform"
+    n_intervals : int or (int, int), default=10
+    overlap : float or (float, float), default=0.3
+    clusterer : str or object with fit_predict, default="single_linkage"
+    clusterer_params : dict or None, default=None
+    noise : {"singleton", "drop"}, default="singleton"
+        What becomes of rows a clusterer labels noise: a node of one row each, or no node
+        (the row then lies in no node of that element; :attr:`n_noise_` counts them).
+    n_jobs : int, None or executor, default=None
+        ``None``/1: serial; ``n > 1``: ``n`` local processes; or an executor object.
+        Parallel runs give the same graph as serial.
+
+    Attributes
+    ----------
+    graph_ : MapperGraph
+    filter_values_ : ndarray of shape (n_rows, d)
+    cover_ : the fitted cover
+    n_elements_ : int
+        Non-empty cover elements.
+    n_noise_ : int
+        Row memberships labelled noise by the clusterer.
+    timings_ : dict
+        Seconds spent in each step; ``cluster_fit_sum`` is the sum of the clusterer's own
+        fit times over the cover elements.
+
+    Examples
+    --------
+    >>> angle = np.linspace(0, 2 * np.pi, 400, endpoint=False)
+    >>> circle = np.column_stack([np.cos(angle), np.sin(angle)])
+    >>> builder = MapperBuilder("coordinate", filter_params={"columns": 1}, n_intervals=4)
+    >>> builder.fit(circle).graph_.n_nodes
+    6
+    """
+
+    _parameter_constraints = {
+        "cover": [Choice(tuple(COVERS)), Kind(lambda v: hasattr(v, "fit_transform"), "a cover")],
+        "noise": [Choice(("singleton", "drop"))],
+        "clusterer": [_CLUSTERER_SPEC],
+        "filter_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
+        "clusterer_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
+        "random_state": [Interval(int, 0, None), Kind(lambda v: v is None, "None")],
+    }
+
+    def __init__(
+        self,
+        filter: Any = "pca",
+        *,
+        filter_params: dict[str, Any] | None = None,
+        cover: Any = "uniform",
+        n_intervals: int | tuple[int, int] = 10,
+        overlap: float | tuple[float, float] = 0.3,
+        clusterer: Any = "single_linkage",
+        clusterer_params: dict[str, Any] | None = None,
+        noise: str = "singleton",
+        n_jobs: Any = None,
+        random_state: int | None = 0,
+    ) -> None:
+        self.filter = filter
+        self.filter_params = filter_params
+        self.cover = cover
+        self.n_intervals = n_intervals
+        self.overlap = overlap
+        self.clusterer = clusterer
+        self.clusterer_params = clusterer_params
+        self.noise = noise
+        self.n_jobs = n_jobs
+        self.random_state = random_state
+
+    def _make_cover(self) -> Any:
+        if isinstance(self.cover, str):
+            if self.cover not in COVERS:
+                raise unknown_name("cover", self.cover, COVERS)
+            return COVERS[self.cover](self.n_intervals, overlap=self.overlap)
+        return self.cover
+
+    def _settings(self, clusterer: Clusterer, cover: Any) -> dict[str, Any]:
+        return {
+            "filter": repr(self._filter_obj),
+            "cover": repr(cover),
+            "clusterer": repr(clusterer),
+            "noise": self.noise,
+        }
+
+    def fit(self, X: Any, y: Any = None) -> MapperBuilder:
+        """Build the graph of the rows of ``X``; sets :attr:`graph_` and returns self."""
+        if isinstance(self.cover, str) and self.cover not in COVERS:
+            raise unknown_name("cover", self.cover, COVERS)
+        check_params("MapperBuilder", self._parameter_constraints, vars(self))
+        t0 = time.perf_counter()
+        clusterer = make_clusterer(self.clusterer, **(self.clusterer_params or {}))
+        if isinstance(clusterer, Clusterer) and hasattr(clusterer, "random_state") and (
+            self.clusterer_params is None or "random_state" not in self.clusterer_params
+        ) and isinstance(self.clusterer, str):
+            clusterer.random_state = self.random_state
+        executor = make_executor(self.n_jobs)
+        cover = self._make_cover()
+        X = as_matrix(X, min_rows=1)
+        if X.shape[0] < clusterer.min_rows:
+            msg = (
+                f"X has {X.shape[0]} rows; the clusterer {type(clusterer).__name__} needs at "
+                f"least {clusterer.min_rows}."
+            )
+            raise DataError(msg)
+
+        params = dict(self.filter_params or {})
+        if isinstance(self.filter, str) and "random_state" in _init_args(self.filter):
+            params.setdefault("random_state", self.random_state)
+        self._filter_obj = make_filter(self.filter, **params)
+        values = self._filter_obj.fit_transform(X)
+        t1 = time.perf_counter()
+        elements = cover.fit_transform(values)
+        t2 = time.perf_counter()
+
+        tasks = [(X[e.rows], clusterer) for e in elements]
+        weights = [float(e.size) for e in elements]
+        try:
+            if isinstance(executor, ProcessExecutor):
+                results = executor.map(_cluster_task, tasks, weights=weights)
+            else:
+                results = executor.map(_cluster_task, tasks)
+        except TopoauditError:
+            raise
+        except Exception as exc:
+            msg = f"The clusterer {clusterer!r} failed on a cover element: {exc}"
+            raise ClusteringError(msg) from exc
+        t3 = time.perf_counter()
+
+        members: list[np.ndarray] = []
+        node_element: list[tuple[int, ...]] = []
+        n_noise = 0
+        fit_sum = 0.0
+        for element, (labels, fit_seconds) in zip(elements, results, strict=True):
+            fit_sum += fit_seconds
+            if labels.shape != element.rows.shape:
+                msg = (
+                    f"The clusterer {clusterer!r} returned {labels.shape[0]} labels for a cover "
+                    f"element of {element.size} rows; one label per row is needed."
+                )
+                raise ClusteringError(msg)
+            k = int(labels.max()) + 1 if labels.size else 0
+            if k:
+                order = np.argsort(labels, kind="stable")
+                sorted_labels = labels[order]
+                starts = np.searchsorted(sorted_labels, np.arange(k + 1))
+                for c in range(k):
+                    members.append(element.rows[order[starts[c] : starts[c + 1]]])
+                    node_element.append(element.index)
+            noise_rows = element.rows[labels < 0]
+            n_noise += int(noise_rows.size)
+            if self.noise == "singleton":
+                for r in noise_rows:
+                    members.append(np.array([r], dtype=np.int64))
+                    node_element.append(element.index)
+
+        d = values.shape[1]
+        node_filter = np.array(
+            [values[m].mean(axis=0) for m in members], dtype=np.float64
+        ).reshape(-1, d)
+        self.graph_ = MapperGraph.from_members(
+            members,
+            X.shape[0],
+            node_element=np.array(node_element, dtype=np.int64).reshape(-1, d),
+            node_filter=node_filter,
+            settings=self._settings(clusterer, cover),
+        )
+        t4 = time.perf_counter()
+        self.filter_values_ = values
+        self.cover_ = cover
+        self.n_elements_ = len(elements)
+        self.n_noise_ = n_noise
+        self.timings_ = {
+            "filter": t1 - t0,
+            "cover": t2 - t1,
+            "clustering": t3 - t2,
+            "cluster_fit_sum": fit_sum,
+            "nodes_and_nerve": t4 - t3,
+            "total": t4 - t0,
+        }
+        return self
+
+    def __repr__(self) -> str:
+        return (
+            f"MapperBuilder(filter={self.filter!r}, cover={self.cover!r}, "
+            f"n_intervals={self.n_intervals!r}, overlap={self.overlap!r}, "
+            f"clusterer={self.clusterer!r})"
+        )
+
+
+def _init_args(filter_name: str) -> tuple[str, ...]:
+    from topoaudit.mapper.filters import FILTERS
+
+    cls = FILTERS.get(filter_name)
+    return cls.__init__.__code__.co_varnames if cls else ()
+
