@@ -26,17 +26,26 @@ def iter_sq_distances(
 ) -> Iterator[tuple[int, int, np.ndarray]]:
     """Yield ``(start, stop, D2)`` where ``D2[i, j] = ||A[start + i] - B[j]||²``.
 
+    When ``A is B`` the distance of each row to itself is exactly 0.
     Cost: O(len(A) * len(B) * d) time, O(max_bytes) memory.
     """
+    same = A is B
+    # Shift both sets by the mean of B: the expansion ||a||² - 2 a.b + ||b||² loses about
+    # eps * ||x||² to cancellation, so distances far from the origin would lose digits.
+    shift = B.mean(axis=0) if B.shape[0] else np.zeros(B.shape[1])
+    B = B - shift
     b_sq = np.einsum("ij,ij->i", B, B)
     step = _block_rows(B.shape[0], max_bytes)
     for start in range(0, A.shape[0], step):
-        a = A[start : start + step]
+        a = A[start : start + step] - shift
         d2 = a @ B.T
         d2 *= -2.0
         d2 += np.einsum("ij,ij->i", a, a)[:, None]
         d2 += b_sq[None, :]
         np.maximum(d2, 0.0, out=d2)
+        if same:  # the expansion leaves rounding error, not 0, on the diagonal
+            diag = np.arange(a.shape[0])
+            d2[diag, start + diag] = 0.0
         yield start, start + a.shape[0], d2
 
 

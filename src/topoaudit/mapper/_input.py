@@ -19,6 +19,15 @@ def describe_rows(rows: np.ndarray, limit: int = 5) -> str:
     return f"row{'s' if rows.size > 1 else ''} {shown}{more}"
 
 
+def _numeric_column(dtype: Any) -> bool:
+    """True for numeric, non-boolean column types, numpy's or pandas' own (Int64...)."""
+    if isinstance(dtype, np.dtype):
+        return dtype.kind != "b" and np.issubdtype(dtype, np.number)
+    from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
+    return bool(is_numeric_dtype(dtype) and not is_bool_dtype(dtype))
+
+
 def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
     """Return ``X`` as a C-contiguous 2-D float64 array with finite values.
 
@@ -33,21 +42,29 @@ def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
             msg = f"{name} has duplicated column names {dup}; each column needs a unique name."
             raise DataError(msg)
         for col, dtype in zip(columns, X.dtypes, strict=True):
-            if dtype == bool or not np.issubdtype(np.dtype(dtype), np.number):
+            if not _numeric_column(dtype):
                 msg = (
                     f"Column {col!r} of {name} has non-numeric type {dtype}; the graph needs "
                     "numeric columns (encode categories first)."
                 )
                 raise DataError(msg)
-        X = X.to_numpy()
+        if all(isinstance(dtype, np.dtype) for dtype in X.dtypes):
+            X = X.to_numpy()
+        else:  # nullable pandas columns (Int64, Float64): a missing value becomes NaN
+            X = np.column_stack(
+                [
+                    s.to_numpy()
+                    if isinstance(s.dtype, np.dtype)
+                    else s.to_numpy(dtype=np.float64, na_value=np.nan)
+                    for _, s in X.items()
+                ]
+            )
     try:
         arr = np.asarray(X)
     except Exception as exc:  # ragged lists and other objects numpy cannot hold
         msg = f"{name} cannot be read as a numeric matrix: {exc}."
         raise DataError(msg) from exc
-    if arr.dtype == object or not (
-        np.issubdtype(arr.dtype, np.number) or arr.dtype == np.bool_
-    ):
+    if arr.dtype == object or not (np.issubdtype(arr.dtype, np.number) or arr.dtype == np.bool_):
         msg = f"{name} has non-numeric values (dtype {arr.dtype}); a numeric matrix is needed."
         raise DataError(msg)
     if np.iscomplexobj(arr):
@@ -72,9 +89,7 @@ def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
     if not finite.all():
         bad_rows = np.flatnonzero(~finite.all(axis=1))
         bad_cols = np.flatnonzero(~finite.all(axis=0))
-        where = ", ".join(
-            repr(columns[c]) if columns else str(int(c)) for c in bad_cols[:5]
-        )
+        where = ", ".join(repr(columns[c]) if columns else str(int(c)) for c in bad_cols[:5])
         msg = (
             f"{name} has NaN or infinite values in {describe_rows(bad_rows)} "
             f"(column{'s' if bad_cols.size > 1 else ''} {where}); only finite values are accepted."

@@ -35,9 +35,9 @@ __all__ = [
     "AutoDBSCAN",
     "Clusterer",
     "EstimatorClusterer",
-    "SingleLinkage",
     "HDBSCANClusterer",
     "SilhouetteKMedoids",
+    "SingleLinkage",
     "make_clusterer",
     "relabel",
 ]
@@ -333,8 +333,11 @@ class SilhouetteKMedoids(Clusterer):
 
         def fit(k: int) -> Any:
             return KMedoids(
-                n_clusters=k, metric="precomputed", method="alternate",
-                init="k-medoids++", random_state=seed,
+                n_clusters=k,
+                metric="precomputed",
+                method="alternate",
+                init="k-medoids++",
+                random_state=seed,
             ).fit(D)
 
         if self.n_clusters is not None:

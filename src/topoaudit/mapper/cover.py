@@ -57,7 +57,10 @@ def _overlap_ok(v: Any) -> bool:
 class _IntervalCover:
     _parameter_constraints = {
         "n_intervals": [
-            Kind(_count_ok, f"an int in [1, {MAX_INTERVALS}] or a pair of such ints (one per dimension)")
+            Kind(
+                _count_ok,
+                f"an int in [1, {MAX_INTERVALS}] or a pair of such ints (one per dimension)",
+            )
         ],
         "overlap": [
             Kind(_overlap_ok, "a number in [0, 1) or a pair of such numbers (one per dimension)")
@@ -87,7 +90,7 @@ class _IntervalCover:
     def _unit_positions(self, column: np.ndarray) -> np.ndarray:  # pragma: no cover
         raise NotImplementedError
 
-    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):  # noqa: ANN202
+    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         raise NotImplementedError  # pragma: no cover
 
     def fit(self, values: Any) -> _IntervalCover:
@@ -186,7 +189,7 @@ class UniformCover(_IntervalCover):
             return np.zeros_like(column)
         return np.clip((column - lo) / (hi - lo), 0.0, 1.0)
 
-    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):  # noqa: ANN202
+    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         lo, hi = float(column.min()), float(column.max())
         return np.column_stack([lo + starts * (hi - lo), lo + ends * (hi - lo)])
 
@@ -214,11 +217,11 @@ class BalancedCover(_IntervalCover):
 
     def _unit_positions(self, column: np.ndarray) -> np.ndarray:
         n = column.shape[0]
-        if n == 1:
-            return np.zeros(1)
+        if n == 1 or column.min() == column.max():  # one value: one interval, as uniform
+            return np.zeros(n)
         return (rankdata(column, method="average") - 1.0) / (n - 1.0)
 
-    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):  # noqa: ANN202
+    def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         return np.column_stack([np.quantile(column, starts), np.quantile(column, ends)])
 
 

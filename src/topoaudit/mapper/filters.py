@@ -36,11 +36,15 @@ __all__ = [
 ]
 
 _INT_OR_PAIR = Kind(
-    lambda v: (isinstance(v, numbers.Integral) and not isinstance(v, bool) and v >= 0)
-    or (
-        isinstance(v, tuple | list)
-        and 1 <= len(v) <= 2
-        and all(isinstance(c, numbers.Integral) and not isinstance(c, bool) and c >= 0 for c in v)
+    lambda v: (
+        (isinstance(v, numbers.Integral) and not isinstance(v, bool) and v >= 0)
+        or (
+            isinstance(v, tuple | list)
+            and 1 <= len(v) <= 2
+            and all(
+                isinstance(c, numbers.Integral) and not isinstance(c, bool) and c >= 0 for c in v
+            )
+        )
     ),
     "a column index or a tuple of one or two column indices",
 )
@@ -234,7 +238,10 @@ class GaussianDensity(_Sampled):
     """
 
     _parameter_constraints = {
-        "bandwidth": [Interval(float, 0, None, closed="neither"), Kind(lambda v: v is None, "None")],
+        "bandwidth": [
+            Interval(float, 0, None, closed="neither"),
+            Kind(lambda v: v is None, "None"),
+        ],
         "max_reference": [Interval(int, 1, None)],
     }
 
