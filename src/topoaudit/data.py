@@ -1,0 +1,248 @@
+"""Load the validation rows named by a config, check them, encode them, fingerprint them.
+
+Every refusal names the file and the column (and rows, where rows are at fault) and says
+what would be accepted.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from topoaudit.config import Config
+from topoaudit.errors import DataError, closest_names
+from topoaudit.mapper._input import describe_rows
+
+__all__ = ["Dataset", "fingerprint", "load_dataset", "prepare_dataset", "read_table"]
+
+
+@dataclass(frozen=True, eq=False)
+class Dataset:
+    """The rows of one audit, ready for the graph and the audit.
+
+    Attributes
+    ----------
+    ids : ndarray of str
+    X : ndarray of shape (n_rows, n_encoded)
+        Encoded features (one-hot or ordinal codes for categorical columns).
+    feature_names : tuple of str
+        Names of the columns of ``X``.
+    frame : DataFrame
+        The feature columns as read (for describing regions in the user's terms).
+    target : ndarray
+    scores : dict of release name -> ndarray
+    task : {"binary", "regression"}
+    fingerprint : str
+        sha256 of the rows and columns used (see :func:`fingerprint`).
+    n_dropped : int
+        Rows dropped for missing values (only with ``on_missing = "drop"``).
+    """
+
+    ids: np.ndarray
+    X: np.ndarray
+    feature_names: tuple[str, ...]
+    frame: pd.DataFrame
+    target: np.ndarray
+    scores: dict[str, np.ndarray]
+    task: str
+    fingerprint: str
+    n_dropped: int = 0
+    source: str = ""
+    encoding: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.X.shape[0])
+
+
+def read_table(path: Path) -> pd.DataFrame:
+    """Read a CSV or Parquet file; refuse anything else with the accepted suffixes."""
+    suffix = path.suffix.lower()
+    if not path.exists():
+        raise DataError(f"{path}: no such data file.")
+    try:
+        if suffix in (".csv", ".txt"):
+            return pd.read_csv(path, keep_default_na=True)
+        if suffix in (".parquet", ".pq"):
+            return pd.read_parquet(path)
+    except (ValueError, OSError, pd.errors.ParserError, UnicodeDecodeError) as exc:
+        raise DataError(f"{path}: cannot be read as {suffix[1:].upper()} ({exc}).") from exc
+    msg = f"{path}: unknown data file type {suffix!r}; accepted are .csv and .parquet."
+    raise DataError(msg)
+
+
+def fingerprint(frame: pd.DataFrame) -> str:
+    """sha256 over the column names and values, column by column, in order.
+
+    Numbers are hashed as little-endian float64, everything else as UTF-8 text joined by
+    the unit separator; so the same rows and columns give the same fingerprint whether
+    read from CSV or Parquet.
+    """
+    h = hashlib.sha256()
+    h.update(f"{frame.shape[0]}x{frame.shape[1]}\n".encode())
+    for col in frame.columns:
+        h.update(str(col).encode("utf-8") + b"\x1e")
+        values = frame[col]
+        if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
+            h.update(np.ascontiguousarray(values.to_numpy(dtype="<f8")).tobytes())
+        else:
+            h.update("\x1f".join(map(str, values.tolist())).encode("utf-8"))
+        h.update(b"\x1d")
+    return h.hexdigest()
+
+
+def _missing_column(where: str, col: str, role: str, columns: list[str]) -> DataError:
+    near = closest_names(col, columns, n=1)
+    hint = f" Did you mean {near[0]!r}?" if near else ""
+    return DataError(f"{where}: the {role} column {col!r} is not in the file.{hint}")
+
+
+def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<frame>") -> Dataset:
+    """Check and encode ``frame`` as the config describes."""
+    d = config.data
+    where = source
+    columns = [str(c) for c in frame.columns]
+    if len(set(columns)) != len(columns):
+        dup = sorted({c for c in columns if columns.count(c) > 1})
+        raise DataError(f"{where}: duplicated column names {dup}; each column needs a unique name.")
+    frame = frame.copy()
+    frame.columns = columns
+    if frame.shape[0] == 0:
+        raise DataError(f"{where}: the file has no rows.")
+    for col, role in [(d.id, "id"), (d.target, "target")] + [
+        (r.score, f"score (release {r.name})") for r in config.releases
+    ]:
+        if col not in columns:
+            raise _missing_column(where, col, role, columns)
+    reserved = {d.id, d.target, *(r.score for r in config.releases)}
+    for col in (*(d.features or ()), *d.exclude, *d.categorical):
+        if col not in columns:
+            raise _missing_column(where, col, "feature", columns)
+    if d.features is not None:
+        features = list(d.features)
+        clash = [c for c in features if c in reserved]
+        if clash:
+            raise DataError(
+                f"{where}: {clash} cannot be features: they are the id, target or a score."
+            )
+    else:
+        features = [c for c in columns if c not in reserved and c not in d.exclude]
+    if not features:
+        raise DataError(f"{where}: no feature columns are left; name them in data.features.")
+
+    used = [d.id, d.target, *[r.score for r in config.releases], *features]
+    sub = frame[used]
+    numeric_needed = [d.target, *[r.score for r in config.releases]] + [
+        c for c in features if c not in d.categorical
+    ]
+    for col in numeric_needed:
+        s = sub[col]
+        if not pd.api.types.is_numeric_dtype(s) or pd.api.types.is_bool_dtype(s):
+            bad = pd.to_numeric(s, errors="coerce").isna() & s.notna()
+            rows = np.flatnonzero(bad.to_numpy())
+            example = repr(s.iloc[rows[0]]) if rows.size else repr(s.dtype)
+            msg = (
+                f"{where}: column {col!r} must be numeric; {describe_rows(rows)} hold "
+                f"non-numbers such as {example}"
+                + (" (declare it in data.categorical to encode it)." if col in features else ".")
+            )
+            raise DataError(msg)
+    col_bad = {c: ~np.isfinite(sub[c].to_numpy(dtype=float)) for c in numeric_needed}
+    col_bad.update({c: sub[c].isna().to_numpy() for c in (d.id, *d.categorical)})
+    bad_mask = np.logical_or.reduce(list(col_bad.values()))
+    n_dropped = 0
+    if bad_mask.any():
+        rows = np.flatnonzero(bad_mask)
+        bad_cols = [c for c, m in col_bad.items() if m.any()]
+        if d.on_missing == "refuse":
+            msg = (
+                f"{where}: missing, NaN or infinite values in {describe_rows(rows)} "
+                f'(columns {bad_cols}); fix them, or set data.on_missing = "drop" to drop '
+                "those rows."
+            )
+            raise DataError(msg)
+        n_dropped = int(rows.size)
+        sub = sub.loc[~bad_mask].reset_index(drop=True)
+        if sub.shape[0] == 0:
+            raise DataError(f"{where}: every row has a missing value; none are left.")
+
+    ids = sub[d.id].astype(str).to_numpy()
+    dup_ids = pd.Series(ids).duplicated(keep=False).to_numpy()
+    if dup_ids.any():
+        rows = np.flatnonzero(dup_ids)
+        msg = (
+            f"{where}: the id column {d.id!r} has duplicated ids in {describe_rows(rows)} "
+            f"(for example {ids[rows[0]]!r}); every row needs its own id."
+        )
+        raise DataError(msg)
+    target = sub[d.target].to_numpy(dtype=float)
+    if d.task == "binary":
+        values = set(np.unique(target).tolist())
+        if not values <= {0.0, 1.0}:
+            others = sorted(values - {0.0, 1.0})[:5]
+            raise DataError(
+                f"{where}: the target {d.target!r} of a binary task must hold 0 and 1 only; "
+                f"found {others}."
+            )
+        if len(values) < 2:
+            raise DataError(
+                f"{where}: the target {d.target!r} holds one class only ({int(target[0])}); "
+                "an audit needs both outcomes."
+            )
+        target = target.astype(np.int64)
+    scores = {}
+    for r in config.releases:
+        s = sub[r.score].to_numpy(dtype=float)
+        if d.task == "binary":
+            out = (s < 0) | (s > 1)
+            if out.any():
+                rows = np.flatnonzero(out)
+                raise DataError(
+                    f"{where}: the score column {r.score!r} (release {r.name}) must hold "
+                    f"probabilities in [0, 1]; {describe_rows(rows)} are outside, such as "
+                    f"{s[rows[0]]!r}."
+                )
+        scores[r.name] = s
+
+    blocks, names, encoding = [], [], {}
+    for col in features:
+        kind = d.categorical.get(col)
+        values = sub[col]
+        if kind is None:
+            blocks.append(values.to_numpy(dtype=float).reshape(-1, 1))
+            names.append(col)
+            continue
+        cats = sorted(values.astype(str).unique().tolist())
+        encoding[col] = {"encoding": kind, "categories": cats}
+        codes = pd.Categorical(values.astype(str), categories=cats).codes.astype(float)
+        if kind == "ordinal":
+            blocks.append(codes.reshape(-1, 1))
+            names.append(col)
+        else:
+            blocks.append((codes[:, None] == np.arange(len(cats))[None, :]).astype(float))
+            names.extend(f"{col}={c}" for c in cats)
+    X = np.hstack(blocks)
+    return Dataset(
+        ids=ids,
+        X=X,
+        feature_names=tuple(names),
+        frame=sub[features].reset_index(drop=True),
+        target=target,
+        scores=scores,
+        task=d.task,
+        fingerprint=fingerprint(sub),
+        n_dropped=n_dropped,
+        source=source,
+        encoding=encoding,
+    )
+
+
+def load_dataset(config: Config) -> Dataset:
+    """Read the config's data file and prepare it (see :func:`prepare_dataset`)."""
+    path = Path(config.data.path)
+    return prepare_dataset(read_table(path), config, source=str(path))
