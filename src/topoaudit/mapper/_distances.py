@@ -4,6 +4,13 @@ In ten or more dimensions, tree indexes answer neighbour queries little faster t
 brute force, while a matrix product computes a block of squared distances at BLAS speed.
 Every routine here walks the query rows in blocks sized so that one block of distances
 stays under ``max_bytes`` (64 MiB by default); no n x n matrix is ever formed.
+
+The neighbour routines (:func:`nearest_index`, :func:`kth_distance`) use blocks of at most
+:data:`BLOCK_BYTES` into one reused buffer, so that each block is still in cache when it is
+reduced, and compute ``||b||² - 2 a·b`` with a single matrix product of ``[a, 1]`` and
+``[-2 b, ||b||²]``: the squared distance less ``||a||²``, which is constant along a row and
+so changes neither the nearest row nor the order of a row's distances. ``||a||²`` is added
+back only to the distances returned.
 """
 
 from __future__ import annotations
@@ -12,9 +19,13 @@ from collections.abc import Iterator
 
 import numpy as np
 
-__all__ = ["iter_sq_distances", "kth_distance", "nearest_index"]
+__all__ = ["BLOCK_BYTES", "MAX_BYTES", "iter_sq_distances", "kth_distance", "nearest_index"]
 
 MAX_BYTES = 64 * 2**20
+BLOCK_BYTES = 2**20
+"""Target size of one block of distances in the neighbour routines (cache-sized)."""
+
+_MIN_BLOCK_ROWS = 8
 
 
 def _block_rows(n_ref: int, max_bytes: int) -> int:
@@ -49,11 +60,61 @@ def iter_sq_distances(
         yield start, start + a.shape[0], d2
 
 
+def _iter_shifted(
+    A: np.ndarray, B: np.ndarray, max_bytes: int
+) -> Iterator[tuple[int, int, np.ndarray, np.ndarray]]:
+    """Yield ``(start, stop, a, V)`` with ``V[i, j] = ||B[j]||² - 2 A[start + i]·B[j]``.
+
+    Both sets are first shifted by the mean of ``B`` (which changes no distance) so that
+    the expansion does not lose digits to cancellation far from the origin; ``a`` is the
+    block of rows of ``A``, shifted the same way. ``V`` is a view of a buffer reused by the
+    next block: use it before asking for the next one.
+    """
+    A = np.ascontiguousarray(A, dtype=np.float64)
+    B = np.ascontiguousarray(B, dtype=np.float64)
+    n_ref, d = B.shape
+    shift = B.mean(axis=0) if n_ref else np.zeros(d)
+    B = B - shift
+    ref = np.empty((d + 1, n_ref), dtype=np.float64)
+    np.multiply(B.T, -2.0, out=ref[:d])
+    ref[d] = np.einsum("ij,ij->i", B, B)
+    step = max(_MIN_BLOCK_ROWS, _block_rows(n_ref, min(max_bytes, BLOCK_BYTES)))
+    step = min(step, max(1, A.shape[0]))
+    query = np.ones((step, d + 1), dtype=np.float64)
+    out = np.empty((step, n_ref), dtype=np.float64)
+    for start in range(0, A.shape[0], step):
+        a = A[start : start + step] - shift
+        m = a.shape[0]
+        query[:m, :d] = a
+        np.matmul(query[:m], ref, out=out[:m])
+        yield start, start + m, a, out[:m]
+
+
 def nearest_index(A: np.ndarray, B: np.ndarray, *, max_bytes: int = MAX_BYTES) -> np.ndarray:
-    """Index of the nearest row of ``B`` for each row of ``A`` (ties: the lowest index)."""
+    """Index of the nearest row of ``B`` for each row of ``A`` (ties: the lowest index).
+
+    Parameters
+    ----------
+    A : ndarray of shape (n, d)
+        Query rows.
+    B : ndarray of shape (m, d)
+        Reference rows, ``m >= 1``.
+    max_bytes : int, default=MAX_BYTES
+        Upper bound on the memory of one block of distances.
+
+    Returns
+    -------
+    ndarray of shape (n,)
+        Positions in ``B``.
+
+    Examples
+    --------
+    >>> nearest_index(np.array([[0.1], [2.9], [1.6]]), np.array([[0.0], [3.0], [1.5]])).tolist()
+    [0, 1, 2]
+    """
     out = np.empty(A.shape[0], dtype=np.intp)
-    for start, stop, d2 in iter_sq_distances(A, B, max_bytes=max_bytes):
-        out[start:stop] = np.argmin(d2, axis=1)
+    for start, stop, _, v in _iter_shifted(A, B, max_bytes):
+        np.argmin(v, axis=1, out=out[start:stop])
     return out
 
 
@@ -64,11 +125,36 @@ def kth_distance(
 
     With ``self_included`` (``A`` is a subset of ``B``), each row's zero distance to itself
     is skipped, so ``k=1`` is the nearest *other* row.
+
+    Parameters
+    ----------
+    A : ndarray of shape (n, d)
+        Query rows.
+    B : ndarray of shape (m, d)
+        Reference rows.
+    k : int
+        Rank of the neighbour, from 1; at most ``m`` rows are counted.
+    self_included : bool
+        Whether every row of ``A`` is also a row of ``B``.
+    max_bytes : int, default=MAX_BYTES
+        Upper bound on the memory of one block of distances.
+
+    Returns
+    -------
+    ndarray of shape (n,)
+
+    Examples
+    --------
+    >>> X = np.array([[0.0], [1.0], [3.0]])
+    >>> kth_distance(X, X, 1, self_included=True).tolist()
+    [1.0, 1.0, 2.0]
     """
     kk = k + 1 if self_included else k
     kk = min(kk, B.shape[0])
     out = np.empty(A.shape[0], dtype=np.float64)
-    for start, stop, d2 in iter_sq_distances(A, B, max_bytes=max_bytes):
-        part = np.partition(d2, kk - 1, axis=1)[:, kk - 1]
-        out[start:stop] = np.sqrt(part)
+    for start, stop, a, v in _iter_shifted(A, B, max_bytes):
+        v.partition(kk - 1, axis=1)
+        part = v[:, kk - 1] + np.einsum("ij,ij->i", a, a)
+        np.maximum(part, 0.0, out=part)
+        np.sqrt(part, out=out[start:stop])
     return out

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import numbers
 import time
+import warnings
 from typing import Any
 
 import numpy as np
@@ -36,6 +37,7 @@ __all__ = [
     "Clusterer",
     "EstimatorClusterer",
     "HDBSCANClusterer",
+    "KMeansMesh",
     "SilhouetteKMedoids",
     "SingleLinkage",
     "make_clusterer",
@@ -323,12 +325,16 @@ class SilhouetteKMedoids(Clusterer):
         return max(3, int(self.n_clusters or 0))
 
     def _labels(self, X: np.ndarray) -> np.ndarray:
-        from sklearn_extra.cluster import KMedoids
+        with warnings.catch_warnings():
+            # scikit-learn-extra 0.3 imports distutils' LooseVersion, deprecated upstream
+            warnings.filterwarnings("ignore", "distutils Version classes", DeprecationWarning)
+            from sklearn_extra.cluster import KMedoids
 
         n = X.shape[0]
         sample = _sample(n, self.max_sample, self.random_state)
         S = X if sample is None else X[sample]
         D = np.sqrt(next(iter_sq_distances(S, S, max_bytes=8 * S.shape[0] ** 2 + 8))[2])
+        np.fill_diagonal(D, 0.0)  # silhouette_score needs an exact zero diagonal
         seed = 0 if self.random_state is None else self.random_state
 
         def fit(k: int) -> Any:
@@ -336,7 +342,7 @@ class SilhouetteKMedoids(Clusterer):
                 n_clusters=k,
                 metric="precomputed",
                 method="alternate",
-                init="k-medoids++",
+                init="build",
                 random_state=seed,
             ).fit(D)
 
@@ -380,7 +386,53 @@ class HDBSCANClusterer(Clusterer):
         return max(2, int(self.min_cluster_size))
 
     def _labels(self, X: np.ndarray) -> np.ndarray:
-        model = HDBSCAN(min_cluster_size=self.min_cluster_size, min_samples=self.min_samples)
+        model = HDBSCAN(
+            min_cluster_size=self.min_cluster_size, min_samples=self.min_samples, copy=True
+        )
+        return model.fit_predict(X)
+
+
+class KMeansMesh(Clusterer):
+    """k-means with k set by the element's size, so nodes hold about ``node_rows`` rows.
+
+    On continuous data without gaps, density-based clusterers return one cluster per
+    cover element, and each node is a slab across the whole data set. A partition
+    clusterer with a fixed node size instead cuts every element into a mesh of small,
+    compact nodes that a region search can assemble into a pocket of any shape.
+    ``k = max(1, round(n / node_rows))``; scikit-learn's ``KMeans`` (Lloyd's algorithm,
+    k-means++ seeding, ``n_init`` restarts) with a fixed seed.
+
+    Parameters
+    ----------
+    node_rows : int, default=150
+    n_init : int, default=2
+    random_state : int or None, default=0
+
+    Examples
+    --------
+    >>> X = np.random.default_rng(0).normal(size=(900, 3))
+    >>> int(KMeansMesh(node_rows=300).fit_predict(X).max()) + 1
+    3
+    """
+
+    _parameter_constraints = {
+        "node_rows": [Interval(int, 2, None)],
+        "n_init": [Interval(int, 1, None)],
+        "random_state": _SEED,
+    }
+
+    def __init__(self, node_rows: int = 150, *, n_init: int = 2, random_state: int | None = 0):
+        self.node_rows = node_rows
+        self.n_init = n_init
+        self.random_state = random_state
+
+    def _labels(self, X: np.ndarray) -> np.ndarray:
+        from sklearn.cluster import KMeans
+
+        k = max(1, round(X.shape[0] / self.node_rows))
+        if k == 1:
+            return np.zeros(X.shape[0], dtype=np.int64)
+        model = KMeans(n_clusters=k, n_init=self.n_init, random_state=self.random_state)
         return model.fit_predict(X)
 
 
@@ -412,6 +464,7 @@ CLUSTERERS: dict[str, type[Clusterer]] = {
     "dbscan": AutoDBSCAN,
     "kmedoids": SilhouetteKMedoids,
     "hdbscan": HDBSCANClusterer,
+    "kmeans_mesh": KMeansMesh,
 }
 
 
