@@ -1,0 +1,85 @@
+"""Planted weak regions: simulated releases whose true failure pockets are known.
+
+Each simulation draws rows with ``n_features`` standard-normal features, of which only
+the first three matter, and a release whose scores are calibrated everywhere except in a
+planted pocket, where its error probability is doubled: a row's error probability
+``q = min(p, 1 - p)`` becomes ``min(2q, 0.9)``. The audit should confirm a weak region
+whose rows overlap the pocket with Jaccard >= 0.5. Shapes:
+
+* ``curved``: a tube of about 5% of rows around an arc in a rotated plane of the three
+  relevant features (neither axis-aligned nor convex);
+* ``island``: about 4% of rows displaced far along two irrelevant features (a small
+  separate group), all of it the pocket;
+* ``flare``: 12% of rows along a ray out of the bulk; the pocket is the outer third of it.
+
+The null simulations have no pocket: ``calibrated`` draws outcomes from the scores
+themselves; ``inflated`` doubles the error probability of every row alike (capped at
+0.9), so the release is worse than its scores everywhere by the same factor. Source for
+the method of planting: common practice in simulation studies, no source.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Simulation", "simulate"]
+
+SHAPES = ("curved", "island", "flare", "calibrated", "inflated")
+
+
+@dataclass(frozen=True, eq=False)
+class Simulation:
+    X: np.ndarray
+    y: np.ndarray
+    score: np.ndarray
+    pocket: np.ndarray
+    threshold: float = 0.5
+
+
+def _curved_pocket(X: np.ndarray, share: float) -> np.ndarray:
+    u = (X[:, 0] + X[:, 1]) / np.sqrt(2)
+    v = (X[:, 0] - X[:, 1]) / np.sqrt(2)
+    w = X[:, 2]
+    # distance to an arc of radius 1.6 in the (u, w) plane, on its upper half, offset in v
+    r = np.hypot(u, w)
+    angle = np.arctan2(w, u)
+    d = np.hypot(r - 1.6, v - 0.3)
+    d = np.where((angle > 0.2) & (angle < 2.6), d, np.inf)
+    cut = np.quantile(d[np.isfinite(d)], min(1.0, share * X.shape[0] / np.isfinite(d).sum()))
+    return d <= cut
+
+
+def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int = 0) -> Simulation:
+    """Draw one simulation of ``shape`` (one of ``curved``, ``island``, ``flare``,
+    ``calibrated``, ``inflated``)."""
+    if shape not in SHAPES:
+        msg = f"Unknown simulation shape {shape!r}; the shapes are {', '.join(SHAPES)}."
+        raise ValueError(msg)
+    rng = np.random.default_rng([seed, SHAPES.index(shape)])
+    X = rng.normal(size=(n_rows, n_features))
+    pocket = np.zeros(n_rows, dtype=bool)
+    if shape == "curved":
+        pocket = _curved_pocket(X, 0.05)
+    elif shape == "island":
+        pocket[: int(0.04 * n_rows)] = True
+        X[pocket, 3:5] += 6.0
+    elif shape == "flare":
+        flare = np.zeros(n_rows, dtype=bool)
+        flare[: int(0.12 * n_rows)] = True
+        t = rng.uniform(0, 1, flare.sum())
+        X[flare, 5] = 2.0 + 6.0 * t + rng.normal(0, 0.3, flare.sum())
+        X[flare, 6] = 2.0 + 3.0 * t + rng.normal(0, 0.3, flare.sum())
+        pocket[np.flatnonzero(flare)[t > 2 / 3]] = True
+    logit = 1.1 * X[:, 0] - 0.9 * X[:, 1] + 0.7 * X[:, 2] - 0.4
+    score = 1.0 / (1.0 + np.exp(-logit))
+    q = np.minimum(score, 1 - score)
+    if shape == "inflated":
+        q = np.minimum(2 * q, 0.9)
+    else:
+        q = np.where(pocket, np.minimum(2 * q, 0.9), q)
+    decision = score >= 0.5
+    wrong = rng.uniform(size=n_rows) < q
+    y = np.where(wrong, ~decision, decision).astype(np.int64)
+    return Simulation(X=X, y=y, score=score, pocket=pocket)

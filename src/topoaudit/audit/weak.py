@@ -1,0 +1,467 @@
+"""Weak regions: found on one half of the rows, confirmed on the other.
+
+The rows are split (seeded, stratified by outcome) into a discovery half and a
+confirmation half. Each row carries, for each kind of loss, an observed loss and the loss
+the release's own scores promise for it:
+
+========================  ======================  ========================================
+kind                      observed                expected (score ``p``, threshold ``t``)
+========================  ======================  ========================================
+``error``                 1 if the decision errs  ``p`` if ``p < t`` else ``1 - p``
+``false_positive``        1 if a false positive   ``1 - p`` if ``p >= t`` else 0
+``false_negative``        1 if a false negative   ``p`` if ``p < t`` else 0
+``squared_error`` (reg.)  ``(y - f)²``            the same for every row
+========================  ======================  ========================================
+
+Every classifier errs more near its decision boundary, so excess is measured against
+what the scores promise, and on each half the expected losses are rescaled so their total
+equals the observed total there: the scan conditions on the total, as Kulldorff's scan
+statistic does (Kulldorff, 1997). A release that errs as often as its scores say, or
+more often by the same factor everywhere, then shows no excess anywhere.
+
+**Discovery.** On the discovery half, for a set ``S`` of nodes with observed loss ``O``
+and rescaled expected loss ``E`` out of a total ``N``, the Poisson scan statistic is
+``LLR(S) = O ln(O / E) + (N - O) ln((N - O) / (N - E))`` when ``O > E`` (else 0)
+(Kulldorff, 1997). From each node with excess, a connected set of nodes is grown greedily,
+adding at each step the neighbouring node that raises the LLR most, and the best set on
+that path is kept (bounded at ``max_share`` of the rows). The strongest non-overlapping
+sets become candidates.
+
+**Confirmation.** Each candidate is tested once, on the confirmation half only, one-sided:
+for counts, the exact conditional binomial test (given the ``N`` events observed on that
+half, each falls in the region with probability ``E_region / E_total``); for squared
+errors, a seeded permutation test of the region's mean. Candidates with fewer than
+``min_rows`` confirmation rows are reported as too small and not tested. The
+Benjamini–Hochberg procedure (1995) at ``fdr`` runs over all tested candidates, of every
+graph and kind; a candidate is confirmed when its adjusted p-value is at most ``fdr``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from topoaudit.audit.stats import benjamini_hochberg, binomial_upper_test, permutation_upper_test
+from topoaudit.mapper.graph import MapperGraph
+
+__all__ = [
+    "Finding",
+    "HalfEstimate",
+    "Losses",
+    "binary_losses",
+    "find_weak_regions",
+    "regression_losses",
+    "scan_statistic",
+    "split_halves",
+]
+
+
+@dataclass(frozen=True, eq=False)
+class Losses:
+    """Observed and (unscaled) expected loss of every row, for one kind of loss."""
+
+    kind: str
+    observed: np.ndarray
+    expected: np.ndarray
+    counts: bool = True
+
+
+def binary_losses(y: np.ndarray, p: np.ndarray, threshold: float) -> list[Losses]:
+    """The three kinds of loss of a binary decision at ``threshold`` (see module doc).
+
+    Examples
+    --------
+    >>> [(l.kind, l.observed.tolist(), l.expected.tolist())
+    ...  for l in binary_losses(np.array([0, 1]), np.array([0.8, 0.3]), 0.5)][0]
+    ('error', [1.0, 1.0], [0.19999999999999996, 0.3])
+    """
+    y = np.asarray(y, dtype=float)
+    p = np.asarray(p, dtype=float)
+    pos = p >= threshold
+    err = (pos != (y == 1)).astype(float)
+    fp = (pos & (y == 0)).astype(float)
+    fn = (~pos & (y == 1)).astype(float)
+    return [
+        Losses("error", err, np.where(pos, 1 - p, p)),
+        Losses("false_positive", fp, np.where(pos, 1 - p, 0.0)),
+        Losses("false_negative", fn, np.where(pos, 0.0, p)),
+    ]
+
+
+def regression_losses(y: np.ndarray, prediction: np.ndarray) -> list[Losses]:
+    """Squared error, against an expectation that is equal for every row."""
+    r = np.asarray(y, dtype=float) - np.asarray(prediction, dtype=float)
+    return [Losses("squared_error", r * r, np.ones_like(r), counts=False)]
+
+
+def split_halves(
+    n_rows: int, strata: np.ndarray | None, random_state: int, share: float = 0.5
+) -> np.ndarray:
+    """Boolean mask of the discovery half: a seeded split, stratified by ``strata``."""
+    rng = np.random.default_rng([int(random_state), 17])
+    mask = np.zeros(n_rows, dtype=bool)
+    groups = (
+        np.zeros(n_rows, dtype=np.int64)
+        if strata is None
+        else np.unique(strata, return_inverse=True)[1]
+    )
+    for g in np.unique(groups):
+        idx = np.flatnonzero(groups == g)
+        rng.shuffle(idx)
+        mask[idx[: round(share * idx.size)]] = True
+    return mask
+
+
+def scan_statistic(observed: float, expected: float, total: float) -> float:
+    """Kulldorff's Poisson log-likelihood ratio of a region (0 unless ``O > E``).
+
+    Examples
+    --------
+    >>> round(scan_statistic(30, 20, 100), 4)
+    2.8168
+    """
+    o, e, n = float(observed), float(expected), float(total)
+    if o <= e or e <= 0 or n <= 0:
+        return 0.0
+    inside = o * np.log(o / e)
+    rest_o, rest_e = n - o, n - e
+    outside = rest_o * np.log(rest_o / rest_e) if rest_o > 0 and rest_e > 0 else 0.0
+    return float(inside + outside)
+
+
+def _llr(observed: np.ndarray, expected: np.ndarray, total: float) -> np.ndarray:
+    """:func:`scan_statistic` over arrays of (observed, expected) pairs."""
+    o = np.asarray(observed, dtype=float)
+    e = np.asarray(expected, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inside = np.where(o > 0, o * np.log(o / e), 0.0)
+        ro, re_ = total - o, total - e
+        outside = np.where((ro > 0) & (re_ > 0), ro * np.log(ro / re_), 0.0)
+    return np.where((o > e) & (e > 0), inside + outside, 0.0)
+
+
+@dataclass(frozen=True)
+class HalfEstimate:
+    """A region on one half: rows, observed and expected loss, and their rates."""
+
+    rows: int
+    observed: float
+    expected: float
+
+    @property
+    def observed_rate(self) -> float:
+        return self.observed / self.rows if self.rows else float("nan")
+
+    @property
+    def expected_rate(self) -> float:
+        return self.expected / self.rows if self.rows else float("nan")
+
+    @property
+    def ratio(self) -> float:
+        return self.observed / self.expected if self.expected > 0 else float("nan")
+
+    def as_dict(self) -> dict[str, float]:
+        return {
+            "rows": self.rows,
+            "observed": self.observed,
+            "expected": self.expected,
+            "observed_rate": self.observed_rate,
+            "expected_rate": self.expected_rate,
+            "ratio": self.ratio,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class Finding:
+    """One candidate weak region, with its discovery and confirmation results."""
+
+    graph: str
+    kind: str
+    nodes: tuple[int, ...]
+    rows: np.ndarray
+    llr: float
+    discovery: HalfEstimate
+    confirmation: HalfEstimate
+    tested: bool
+    p_value: float = float("nan")
+    p_adjusted: float = float("nan")
+    confirmed: bool = False
+    lens_threshold: float = float("nan")
+    note: str = ""
+    also_found: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def effect(self) -> float:
+        """Confirmation-half excess rate: observed minus expected loss per row."""
+        return self.confirmation.observed_rate - self.confirmation.expected_rate
+
+
+def _scaled(losses: Losses, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    """Observed and rescaled expected loss on the rows of ``mask`` (zero elsewhere)."""
+    obs = np.where(mask, losses.observed, 0.0)
+    exp = np.where(mask, losses.expected, 0.0)
+    total_o, total_e = obs.sum(), exp.sum()
+    exp = exp * (total_o / total_e) if total_e > 0 else exp
+    return obs, exp, float(total_o)
+
+
+def _grow(
+    seed: int,
+    node_rows: list[np.ndarray],
+    neighbours: list[np.ndarray],
+    obs: np.ndarray,
+    exp: np.ndarray,
+    total: float,
+    max_rows: int,
+    patience: int = 3,
+) -> tuple[float, tuple[int, ...]]:
+    """Grow a connected node set from ``seed``, each step adding the neighbouring node
+    that gives the highest LLR; stop after ``patience`` steps without a new best, or at
+    ``max_rows`` rows. Returns the best (LLR, sorted nodes) seen on the way."""
+    in_set = np.zeros(obs.size, dtype=bool)
+    rows = node_rows[seed]
+    in_set[rows] = True
+    chosen = {seed}
+    o, e, n = obs[rows].sum(), exp[rows].sum(), rows.size
+    best = (scan_statistic(o, e, total), (seed,))
+    frontier = set(neighbours[seed].tolist())
+    stale = 0
+    while frontier and stale < patience:
+        step = None
+        for v in sorted(frontier):
+            new = node_rows[v][~in_set[node_rows[v]]]
+            if n + new.size > max_rows:
+                continue
+            score = scan_statistic(o + obs[new].sum(), e + exp[new].sum(), total)
+            if step is None or score > step[0]:
+                step = (score, v, new)
+        if step is None:
+            break
+        score, v, new = step
+        chosen.add(v)
+        in_set[new] = True
+        o, e, n = o + obs[new].sum(), e + exp[new].sum(), n + new.size
+        frontier.discard(v)
+        frontier.update(int(u) for u in neighbours[v] if int(u) not in chosen)
+        if score > best[0]:
+            best, stale = (score, tuple(sorted(chosen))), 0
+        else:
+            stale += 1
+    return best
+
+
+def _grown(
+    graph: MapperGraph,
+    obs: np.ndarray,
+    exp: np.ndarray,
+    total: float,
+    half: np.ndarray,
+    *,
+    max_share: float,
+    max_seeds: int = 60,
+) -> list[tuple[float, tuple[int, ...], np.ndarray]]:
+    node_rows = [m[half[m]] for m in graph.members]
+    nbrs: list[list[int]] = [[] for _ in range(graph.n_nodes)]
+    for a, b in graph.edges:
+        nbrs[int(a)].append(int(b))
+        nbrs[int(b)].append(int(a))
+    neighbours = [np.array(sorted(v), dtype=np.int64) for v in nbrs]
+    max_rows = int(max_share * half.sum())
+    seeds = []
+    for v, rows in enumerate(node_rows):
+        if rows.size and obs[rows].sum() > exp[rows].sum():
+            seeds.append((scan_statistic(obs[rows].sum(), exp[rows].sum(), total), v))
+    seeds.sort(key=lambda s: (-s[0], s[1]))
+    found = {}
+    for _, v in seeds[:max_seeds]:
+        score, nodes = _grow(v, node_rows, neighbours, obs, exp, total, max_rows)
+        if score > 0:
+            found[nodes] = score
+    return [
+        (score, nodes, np.unique(np.concatenate([node_rows[v] for v in nodes])))
+        for nodes, score in found.items()
+    ]
+
+
+def _level_sets(
+    graph: MapperGraph,
+    lens: np.ndarray,
+    obs: np.ndarray,
+    exp: np.ndarray,
+    total: float,
+    half: np.ndarray,
+    *,
+    max_share: float,
+) -> list[tuple[float, tuple[int, ...], np.ndarray, float]]:
+    """Upper level sets of ``lens`` on the graph: for each interval from the top, the
+    components of the nodes at or above it, each trimmed to the lens level that
+    maximises the LLR. Returns (LLR, nodes, half rows, lens threshold) per component."""
+    level = graph.node_element[:, 0]
+    out = []
+    limit = max_share * half.sum()
+    for j in sorted(np.unique(level).tolist(), reverse=True):
+        chosen = level >= j
+        if sum(int(half[graph.members[v]].sum()) for v in np.flatnonzero(chosen)) > 2 * limit:
+            break
+        for nodes in _components(graph, chosen):
+            rows = np.unique(np.concatenate([graph.members[v] for v in nodes]))
+            rows = rows[half[rows]]
+            if rows.size == 0:
+                continue
+            order = rows[np.argsort(-lens[rows], kind="stable")]
+            o, e = np.cumsum(obs[order]), np.cumsum(exp[order])
+            scores = _llr(o, e, total)
+            scores[int(limit) :] = 0.0
+            m = int(np.argmax(scores))
+            if scores[m] > 0:
+                out.append(
+                    (float(scores[m]), nodes, np.sort(order[: m + 1]), float(lens[order[m]]))
+                )
+    return out
+
+
+def _components(graph: MapperGraph, chosen: np.ndarray) -> list[tuple[int, ...]]:
+    """Connected components (as sorted node tuples) of the subgraph on ``chosen`` nodes."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    e = graph.edges[chosen[graph.edges[:, 0]] & chosen[graph.edges[:, 1]]]
+    n = graph.n_nodes
+    adj = coo_matrix((np.ones(e.shape[0]), (e[:, 0], e[:, 1])), shape=(n, n))
+    _, labels = connected_components(adj, directed=False)
+    nodes = np.flatnonzero(chosen)
+    return [tuple(int(v) for v in nodes[labels[nodes] == c]) for c in np.unique(labels[nodes])]
+
+
+def _pick(candidates: list, max_candidates: int) -> list:
+    """The strongest candidates; one that shares more than half of its (or the other's)
+    rows with a stronger pick is the same place seen again, and is dropped."""
+    ranked = sorted(candidates, key=lambda c: (-c[0], c[1]))
+    picked: list = []
+    for cand in ranked:
+        if any(_overlap(cand[2], other[2]) > 0.5 for other in picked):
+            continue
+        picked.append(cand)
+        if len(picked) == max_candidates:
+            break
+    return picked
+
+
+def _overlap(a: np.ndarray, b: np.ndarray) -> float:
+    """Share of the smaller row set that lies in the other (1 when one contains the other)."""
+    small = min(a.size, b.size)
+    return np.intersect1d(a, b, assume_unique=True).size / small if small else 0.0
+
+
+def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
+    inter = np.intersect1d(a, b, assume_unique=True).size
+    union = a.size + b.size - inter
+    return inter / union if union else 0.0
+
+
+def _estimate(rows: np.ndarray, obs: np.ndarray, exp: np.ndarray) -> HalfEstimate:
+    return HalfEstimate(int(rows.size), float(obs[rows].sum()), float(exp[rows].sum()))
+
+
+def find_weak_regions(
+    graphs: Sequence[Any],
+    losses: Sequence[Losses],
+    discovery: np.ndarray,
+    *,
+    fdr: float = 0.05,
+    min_rows: int = 30,
+    max_share: float = 0.3,
+    max_candidates: int = 5,
+    n_permutations: int = 2000,
+    random_state: int = 0,
+) -> list[Finding]:
+    """Search every graph for candidates on the discovery half and test them on the other.
+
+    Returns every candidate (tested or too small), in a stable order: graph, kind, then
+    discovery LLR descending. See the module docstring for the method.
+    """
+    confirmation = ~discovery
+    out: list[Finding] = []
+    for search in graphs:
+        name, graph = search.name, search.graph
+        for loss in losses:
+            d_obs, d_exp, d_total = _scaled(loss, discovery)
+            c_obs, c_exp, c_total = _scaled(loss, confirmation)
+            if d_total <= 0:
+                continue
+            if search.method == "level":
+                found = _level_sets(
+                    graph, search.lens, d_obs, d_exp, d_total, discovery, max_share=max_share
+                )
+            else:
+                found = [
+                    (*c, float("nan"))
+                    for c in _grown(graph, d_obs, d_exp, d_total, discovery, max_share=max_share)
+                ]
+            for score, nodes, d_rows, threshold in _pick(found, max_candidates):
+                all_rows = np.unique(np.concatenate([graph.members[v] for v in nodes]))
+                if np.isfinite(threshold):
+                    all_rows = all_rows[search.lens[all_rows] >= threshold]
+                c_rows = all_rows[confirmation[all_rows]]
+                conf = _estimate(c_rows, c_obs, c_exp)
+                tested = conf.rows >= min_rows
+                p = float("nan")
+                if tested and loss.counts:
+                    e_total = float(c_exp.sum())
+                    share = min(1.0, conf.expected / e_total) if e_total > 0 else 1.0
+                    p = binomial_upper_test(round(conf.observed), round(c_total), share)
+                elif tested:
+                    rest = np.flatnonzero(confirmation)
+                    rest = rest[~np.isin(rest, c_rows)]
+                    p = permutation_upper_test(
+                        c_obs[c_rows],
+                        c_obs[rest],
+                        n_permutations=n_permutations,
+                        random_state=random_state,
+                    )
+                out.append(
+                    Finding(
+                        graph=name,
+                        kind=loss.kind,
+                        nodes=nodes,
+                        rows=all_rows,
+                        llr=score,
+                        lens_threshold=threshold,
+                        discovery=_estimate(d_rows, d_obs, d_exp),
+                        confirmation=conf,
+                        tested=tested,
+                        p_value=p,
+                        note=""
+                        if tested
+                        else (f"{conf.rows} confirmation rows, fewer than {min_rows}: not tested"),
+                    )
+                )
+    tested_idx = [i for i, f in enumerate(out) if f.tested]
+    adjusted = benjamini_hochberg([out[i].p_value for i in tested_idx])
+    for i, adj in zip(tested_idx, adjusted, strict=True):
+        f = out[i]
+        out[i] = Finding(**{**f.__dict__, "p_adjusted": float(adj), "confirmed": bool(adj <= fdr)})
+    return out
+
+
+def merge_confirmed(findings: Sequence[Finding], *, share: float = 0.5) -> list[Finding]:
+    """The confirmed findings with repeats merged: a finding that shares at least
+    ``share`` of the smaller row set with another is the same weak region; the one with
+    the smallest adjusted p-value (then the largest LLR) is kept and names the others in
+    ``also_found``."""
+    confirmed = sorted(
+        (f for f in findings if f.confirmed), key=lambda f: (f.p_adjusted, -f.llr, f.graph, f.kind)
+    )
+    kept: list[Finding] = []
+    for f in confirmed:
+        for i, k in enumerate(kept):
+            if _overlap(f.rows, k.rows) >= share:
+                seen = (*k.also_found, f"{f.graph}/{f.kind}")
+                kept[i] = Finding(**{**k.__dict__, "also_found": seen})
+                break
+        else:
+            kept.append(f)
+    return kept
