@@ -56,6 +56,49 @@ def _demo(args: argparse.Namespace) -> int:
     return 0
 
 
+def _audit(args: argparse.Namespace) -> int:
+    import shutil
+    import tempfile
+    import time
+
+    from topoaudit.audit.run import run_audit
+    from topoaudit.config import load_config
+
+    out = Path(args.out)
+    if out.exists() and any(out.iterdir()):
+        msg = f"{out}: the output folder exists and is not empty; choose a new folder."
+        raise TopoauditError(msg)
+    config = load_config(args.config)
+    start = time.perf_counter()
+
+    def say(message: str) -> None:
+        if not args.quiet:
+            print(f"[{time.perf_counter() - start:6.1f} s] {message}", file=sys.stderr)
+
+    command = " ".join(
+        ["topoaudit", "audit", str(args.config), "--out", str(args.out)]
+        + (["--release", args.release] if args.release else [])
+    )
+    audit = run_audit(config, release=args.release, progress=say, command=command)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
+    try:
+        audit.write(tmp)
+        if out.exists():
+            out.rmdir()
+        tmp.rename(out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    r = audit.result
+    print(
+        f"{r.model} {r.release}: {r.provenance['rows']} rows, "
+        f"{len(r.weak_regions)} weak region{'s' if len(r.weak_regions) != 1 else ''} confirmed; "
+        f"bundle written to {out}"
+    )
+    return 0
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="topoaudit",
@@ -72,6 +115,13 @@ def _parser() -> argparse.ArgumentParser:
         help="check the stated settings only, not their neighbourhood",
     )
     p.set_defaults(run=_check)
+
+    p = sub.add_parser("audit", help="audit one release and write its bundle")
+    p.add_argument("config", help="the audit's TOML config file")
+    p.add_argument("--out", required=True, help="folder for the bundle (must be new or empty)")
+    p.add_argument("--release", help="release to audit (default: the last in the config)")
+    p.add_argument("--quiet", action="store_true", help="no progress messages")
+    p.set_defaults(run=_audit)
 
     p = sub.add_parser("demo", help="build the graph of the invented water-meter data set")
     p.add_argument(

@@ -237,7 +237,7 @@ def _section(where: str, prefix: str, cls: type, table: Any) -> Any:
         values[key] = value
     for key in cls._required:
         if key not in values:
-            raise _fail(where, f"the required key {prefix}.{key!r} is missing.")
+            raise _fail(where, f"the required key {f'{prefix}.{key}'!r} is missing.")
     return cls(**values)
 
 

@@ -67,11 +67,20 @@ def read_table(path: Path) -> pd.DataFrame:
         raise DataError(f"{path}: no such data file.")
     try:
         if suffix in (".csv", ".txt"):
-            return pd.read_csv(path, keep_default_na=True)
-        if suffix in (".parquet", ".pq"):
+            frame = pd.read_csv(path, keep_default_na=True)
+            # read_csv renames a repeated header ("x", "x.1"); read the names as written.
+            header = pd.read_csv(path, header=None, nrows=1, dtype=str, keep_default_na=False)
+            written = header.iloc[0].tolist()
+        elif suffix in (".parquet", ".pq"):
             return pd.read_parquet(path)
     except (ValueError, OSError, pd.errors.ParserError, UnicodeDecodeError) as exc:
         raise DataError(f"{path}: cannot be read as {suffix[1:].upper()} ({exc}).") from exc
+    if suffix in (".csv", ".txt"):
+        dup = sorted({c for c in written if written.count(c) > 1})
+        if dup:
+            msg = f"{path}: duplicated column names {dup}; each column needs a unique name."
+            raise DataError(msg)
+        return frame
     msg = f"{path}: unknown data file type {suffix!r}; accepted are .csv and .parquet."
     raise DataError(msg)
 
@@ -153,9 +162,10 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
             )
             raise DataError(msg)
     col_bad = {c: ~np.isfinite(sub[c].to_numpy(dtype=float)) for c in numeric_needed}
-    col_bad.update({c: sub[c].isna().to_numpy() for c in (d.id, *d.categorical)})
+    col_bad.update({c: sub[c].isna().to_numpy() for c in (d.id, *d.categorical) if c in used})
     bad_mask = np.logical_or.reduce(list(col_bad.values()))
     n_dropped = 0
+    kept = np.arange(sub.shape[0])  # file row of each remaining row, for messages
     if bad_mask.any():
         rows = np.flatnonzero(bad_mask)
         bad_cols = [c for c, m in col_bad.items() if m.any()]
@@ -167,6 +177,7 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
             )
             raise DataError(msg)
         n_dropped = int(rows.size)
+        kept = np.flatnonzero(~bad_mask)
         sub = sub.loc[~bad_mask].reset_index(drop=True)
         if sub.shape[0] == 0:
             raise DataError(f"{where}: every row has a missing value; none are left.")
@@ -176,7 +187,7 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
     if dup_ids.any():
         rows = np.flatnonzero(dup_ids)
         msg = (
-            f"{where}: the id column {d.id!r} has duplicated ids in {describe_rows(rows)} "
+            f"{where}: the id column {d.id!r} has duplicated ids in {describe_rows(kept[rows])} "
             f"(for example {ids[rows[0]]!r}); every row needs its own id."
         )
         raise DataError(msg)
@@ -204,8 +215,8 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
                 rows = np.flatnonzero(out)
                 raise DataError(
                     f"{where}: the score column {r.score!r} (release {r.name}) must hold "
-                    f"probabilities in [0, 1]; {describe_rows(rows)} are outside, such as "
-                    f"{s[rows[0]]!r}."
+                    f"probabilities in [0, 1]; {describe_rows(kept[rows])} are outside, such as "
+                    f"{float(s[rows[0]])!r}."
                 )
         scores[r.name] = s
 

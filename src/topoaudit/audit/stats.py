@@ -48,7 +48,11 @@ def wilson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[f
     denom = 1.0 + z * z / n
     centre = (p + z * z / (2 * n)) / denom
     half = z * np.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / denom
-    return max(0.0, float(centre - half)), min(1.0, float(centre + half))
+    # The bounds are exactly 0 at successes = 0 and exactly 1 at successes = n; set them
+    # so rounding cannot leave the observed proportion outside its own interval.
+    lo = 0.0 if successes == 0 else max(0.0, float(centre - half))
+    hi = 1.0 if successes == n else min(1.0, float(centre + half))
+    return lo, hi
 
 
 def binomial_upper_test(observed: int, n: int, share: float) -> float:
@@ -65,6 +69,9 @@ def binomial_upper_test(observed: int, n: int, share: float) -> float:
     """
     if not 0 <= share <= 1:
         msg = f"share must be a probability in [0, 1]; got {share!r}."
+        raise ParameterError(msg)
+    if not 0 <= observed <= n:
+        msg = f"binomial_upper_test needs 0 <= observed <= n; got observed={observed}, n={n}."
         raise ParameterError(msg)
     if observed <= 0:
         return 1.0

@@ -1,0 +1,132 @@
+"""What a region is, in the user's feature terms.
+
+Three descriptions, each labelled as what it is:
+
+* the numeric features that most distinguish the region from the other rows, by the
+  standardised mean difference ``(mean_in - mean_out) / sqrt((var_in + var_out) / 2)``
+  (the balance measure of Austin, 2009);
+* categories over-represented in the region (share inside against share outside);
+* a shallow surrogate rule: a decision tree of depth at most 3 fitted to "in the region"
+  against "not", whose positive leaves are read as a rule, with the precision and recall
+  of that rule for the region. It is an approximation of the region, not its definition.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import pandas as pd
+from sklearn.tree import DecisionTreeClassifier
+
+__all__ = ["Description", "describe_region"]
+
+
+@dataclass(frozen=True)
+class FeatureContrast:
+    feature: str
+    region_mean: float
+    rest_mean: float
+    smd: float
+
+
+@dataclass(frozen=True)
+class CategoryContrast:
+    feature: str
+    category: str
+    region_share: float
+    rest_share: float
+
+
+@dataclass(frozen=True)
+class SurrogateRule:
+    text: str
+    precision: float
+    recall: float
+    depth: int
+
+
+@dataclass(frozen=True)
+class Description:
+    contrasts: tuple[FeatureContrast, ...]
+    categories: tuple[CategoryContrast, ...]
+    rule: SurrogateRule
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def _smd(a: np.ndarray, b: np.ndarray) -> float:
+    pooled = np.sqrt((a.var(ddof=1) + b.var(ddof=1)) / 2) if a.size > 1 and b.size > 1 else 0.0
+    return float((a.mean() - b.mean()) / pooled) if pooled > 0 else 0.0
+
+
+def _rule_text(tree: DecisionTreeClassifier, names: list[str]) -> list[str]:
+    t = tree.tree_
+    paths: list[str] = []
+
+    def walk(node: int, conds: list[str]) -> None:
+        if t.children_left[node] == t.children_right[node]:
+            if np.argmax(t.value[node][0]) == 1:
+                paths.append(" and ".join(conds) if conds else "all rows")
+            return
+        name, thr = names[t.feature[node]], t.threshold[node]
+        walk(t.children_left[node], [*conds, f"{name} <= {thr:.4g}"])
+        walk(t.children_right[node], [*conds, f"{name} > {thr:.4g}"])
+
+    walk(0, [])
+    return paths
+
+
+def describe_region(
+    mask: np.ndarray,
+    frame: pd.DataFrame,
+    X: np.ndarray,
+    feature_names: tuple[str, ...] | list[str],
+    *,
+    top: int = 5,
+    max_depth: int = 3,
+    random_state: int = 0,
+) -> Description:
+    """Describe the rows of ``mask`` against the others.
+
+    ``frame`` holds the features as read (numeric and categorical); ``X`` and
+    ``feature_names`` the encoded matrix the surrogate tree is fitted on.
+    """
+    mask = np.asarray(mask, dtype=bool)
+    contrasts = []
+    categories = []
+    for col in frame.columns:
+        s = frame[col]
+        if pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
+            v = s.to_numpy(dtype=float)
+            contrasts.append(
+                FeatureContrast(
+                    col, float(v[mask].mean()), float(v[~mask].mean()), _smd(v[mask], v[~mask])
+                )
+            )
+        else:
+            text = s.astype(str)
+            inside = text[mask].value_counts(normalize=True)
+            outside = text[~mask].value_counts(normalize=True)
+            for cat, share in inside.items():
+                rest = float(outside.get(cat, 0.0))
+                if share > rest:
+                    categories.append(CategoryContrast(col, str(cat), float(share), rest))
+    contrasts.sort(key=lambda c: (-abs(c.smd), c.feature))
+    categories.sort(key=lambda c: (-(c.region_share - c.rest_share), c.feature, c.category))
+    tree = DecisionTreeClassifier(
+        max_depth=max_depth,
+        min_samples_leaf=max(5, int(0.01 * mask.size)),
+        class_weight="balanced",
+        random_state=random_state,
+    ).fit(X, mask.astype(int))
+    pred = tree.predict(X).astype(bool)
+    tp = int(np.sum(pred & mask))
+    rule = SurrogateRule(
+        text=" OR ".join(f"({p})" for p in _rule_text(tree, list(feature_names))) or "no rule",
+        precision=tp / int(pred.sum()) if pred.any() else float("nan"),
+        recall=tp / int(mask.sum()) if mask.any() else float("nan"),
+        depth=int(tree.get_depth()),
+    )
+    return Description(tuple(contrasts[:top]), tuple(categories[:top]), rule)

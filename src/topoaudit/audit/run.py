@@ -1,0 +1,375 @@
+"""One audit of one release, from a config to an AnalysisResult and its bundle.
+
+This is a fixed sequence of plain steps over the modules of this package; each step is
+usable alone from Python.
+"""
+
+from __future__ import annotations
+
+import platform
+from collections.abc import Callable
+from dataclasses import dataclass
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from sklearn.preprocessing import StandardScaler
+
+from topoaudit.audit.compare import compare_releases
+from topoaudit.audit.describe import describe_region
+from topoaudit.audit.local import local_model_test
+from topoaudit.audit.metrics import binary_metrics, metrics_as_dict, regression_metrics
+from topoaudit.audit.regions import partition_graph
+from topoaudit.audit.result import AnalysisResult, build_date
+from topoaudit.audit.search import SearchSettings, search_graphs
+from topoaudit.audit.stability import stability_runs
+from topoaudit.audit.weak import (
+    Finding,
+    binary_losses,
+    find_weak_regions,
+    merge_confirmed,
+    regression_losses,
+    split_halves,
+)
+from topoaudit.config import Config
+from topoaudit.data import Dataset, load_dataset
+from topoaudit.mapper.graph import MapperBuilder, MapperGraph
+from topoaudit.mapper.topology import invariants
+
+__all__ = ["Audit", "run_audit"]
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True, eq=False)
+class Audit:
+    """An AnalysisResult with the row-level data that goes into the bundle only."""
+
+    result: AnalysisResult
+    graph: dict[str, Any]
+    members: pd.DataFrame
+
+    def write(self, folder: str | Path) -> Path:
+        return self.result.write(folder, graph=self.graph, members=self.members)
+
+
+def _versions() -> dict[str, str]:
+    names = ["topoaudit", "numpy", "scipy", "scikit-learn", "networkx", "pandas"]
+    out = {"python": platform.python_version()}
+    for n in names:
+        try:
+            out[n] = metadata.version(n)
+        except metadata.PackageNotFoundError:
+            out[n] = "not installed"
+    return out
+
+
+def _display_graph(
+    config: Config,
+    X: np.ndarray,
+    score: np.ndarray,
+    *,
+    n_intervals: int | None = None,
+    overlap: float | None = None,
+) -> MapperGraph:
+    """The graph shown for the data's shape, at the config's settings or others."""
+    g = config.graph
+    if g.filter == "score":
+        lens: Any = score
+        params = None
+    elif g.filter == "pca":
+        lens, params = "pca", {"n_components": g.components}
+    else:
+        lens, params = g.filter, None
+    builder = MapperBuilder(
+        lens,
+        filter_params=params,
+        cover=g.cover,
+        n_intervals=g.n_intervals if n_intervals is None else n_intervals,
+        overlap=g.overlap if overlap is None else overlap,
+        clusterer=g.clusterer,
+        random_state=config.seed,
+    )
+    return builder.fit(X).graph_
+
+
+def _metrics(
+    ds: Dataset, score: np.ndarray, threshold: float, rows: np.ndarray, boot: int, seed: int
+) -> dict[str, Any]:
+    if ds.task == "binary":
+        m = binary_metrics(
+            ds.target[rows], score[rows], threshold, bootstrap=boot, random_state=seed
+        )
+    else:
+        m = regression_metrics(ds.target[rows], score[rows], bootstrap=boot, random_state=seed)
+    return metrics_as_dict(m)
+
+
+def _finding_dict(f: Finding) -> dict[str, Any]:
+    return {
+        "graph": f.graph,
+        "kind": f.kind,
+        "nodes": list(f.nodes),
+        "rows": int(f.rows.size),
+        "scan_llr": f.llr,
+        "lens_threshold": f.lens_threshold,
+        "discovery": f.discovery.as_dict(),
+        "confirmation": f.confirmation.as_dict(),
+        "tested": f.tested,
+        "p_value": f.p_value,
+        "p_adjusted": f.p_adjusted,
+        "confirmed": f.confirmed,
+        "effect": f.effect,
+        "note": f.note,
+        "also_found": list(f.also_found),
+    }
+
+
+def run_audit(
+    config: Config,
+    dataset: Dataset | None = None,
+    *,
+    release: str | None = None,
+    progress: Progress | None = None,
+    command: str = "",
+) -> Audit:
+    """Audit one release of ``config`` (by default its last) on its data.
+
+    When the config names an earlier release, the audited release is also compared with
+    the one just before it, on the same rows.
+    """
+    say = progress or (lambda _msg: None)
+    ds = dataset if dataset is not None else load_dataset(config)
+    rel = config.release(release) if release else config.releases[-1]
+    index = [r.name for r in config.releases].index(rel.name)
+    baseline = config.releases[index - 1] if index > 0 else None
+    a = config.audit
+    seed = config.seed
+    score = ds.scores[rel.name]
+    X = StandardScaler().fit_transform(ds.X) if config.graph.standardize else ds.X
+
+    say(f"building the graph of {ds.n_rows} rows x {ds.X.shape[1]} features")
+    graph = _display_graph(config, X, score)
+    partition = partition_graph(graph, random_state=seed)
+
+    say("computing metrics")
+    every = np.arange(ds.n_rows)
+    overall = _metrics(ds, score, rel.threshold, every, 200, seed)
+
+    if ds.task == "binary":
+        losses = binary_losses(ds.target, score, rel.threshold)
+    else:
+        losses = regression_losses(ds.target, score)
+    discovery = split_halves(ds.n_rows, ds.target if ds.task == "binary" else None, seed)
+    settings = SearchSettings(n_intervals=a.search_intervals, node_rows=a.node_rows, folds=a.folds)
+    say("searching for weak regions (discovery half)")
+    searched = search_graphs(X, losses, discovery, settings, random_state=seed)
+    findings = find_weak_regions(
+        searched, losses, discovery, fdr=a.fdr, min_rows=a.min_rows, random_state=seed
+    )
+    weak = merge_confirmed(findings)
+    say(f"{sum(f.tested for f in findings)} candidates tested, {len(weak)} weak regions confirmed")
+
+    weak_out = []
+    for i, f in enumerate(weak, start=1):
+        mask = np.zeros(ds.n_rows, dtype=bool)
+        mask[f.rows] = True
+        say(f"describing weak region W{i} and testing a local model there")
+        desc = describe_region(mask, ds.frame, ds.X, ds.feature_names, random_state=seed)
+        local = local_model_test(
+            ds.X[f.rows],
+            ds.target[f.rows],
+            score[f.rows],
+            task=ds.task,
+            model=a.local_model,
+            folds=a.folds,
+            random_state=seed,
+        )
+        weak_out.append(
+            {
+                "id": f"W{i}",
+                **_finding_dict(f),
+                "share_of_rows": f.rows.size / ds.n_rows,
+                "metrics": _metrics(ds, score, rel.threshold, f.rows, 0, seed),
+                "description": desc.as_dict(),
+                "local_model": local.as_dict(),
+            }
+        )
+
+    runs = []
+    if weak and (a.bootstrap_resamples or len(a.stability_intervals) * len(a.stability_overlaps)):
+        runs = stability_runs(
+            X,
+            losses,
+            discovery,
+            [f.rows for f in weak],
+            settings,
+            interval_offsets=a.stability_intervals,
+            overlap_offsets=a.stability_overlaps,
+            resamples=a.bootstrap_resamples,
+            fdr=a.fdr,
+            min_rows=a.min_rows,
+            match_jaccard=a.match_jaccard,
+            random_state=seed,
+            progress=say,
+        )
+    for j, w in enumerate(weak_out):
+        found = [r.found[j] for r in runs]
+        w["stability"] = sum(found) / len(found) if found else None
+
+    grid = []
+    for di in a.stability_intervals:
+        for do in a.stability_overlaps:
+            k = max(1, config.graph.n_intervals + di)
+            o = float(np.clip(config.graph.overlap + do, 0.0, 0.9))
+            g2 = _display_graph(config, X, score, n_intervals=k, overlap=o)
+            grid.append({"n_intervals": k, "overlap": o, **invariants(g2).as_dict()})
+
+    # per-region table and per-node statistics
+    regions = []
+    for r in range(0 if (partition.row_region == 0).any() else 1, partition.n_regions + 1):
+        rows = partition.rows_of(r)
+        if rows.size == 0:
+            continue
+        regions.append(
+            {
+                "id": r,
+                "rows": int(rows.size),
+                "nodes": int(np.sum(partition.node_region == r)),
+                "metrics": _metrics(ds, score, rel.threshold, rows, 0, seed),
+            }
+        )
+    weak_mask = {
+        w["id"]: np.isin(np.arange(ds.n_rows), f.rows) for w, f in zip(weak_out, weak, strict=True)
+    }
+    error = losses[0].observed
+    nodes = []
+    for v, m in enumerate(graph.members):
+        node = {
+            "id": v,
+            "rows": int(m.size),
+            "region": int(partition.node_region[v]),
+            "mean_score": float(score[m].mean()),
+            "loss": float(error[m].mean()),
+            "expected_loss": float(losses[0].expected[m].mean()),
+            "weak_regions": [wid for wid, mk in weak_mask.items() if mk[m].mean() >= 0.5],
+        }
+        if ds.task == "binary":
+            node["positive_rate"] = float(ds.target[m].mean())
+        nodes.append(node)
+    graph_doc = {
+        "n_rows": graph.n_rows,
+        "settings": graph.settings,
+        "nodes": nodes,
+        "links": [
+            {"source": int(s), "target": int(t), "shared": int(c), "jaccard": float(j)}
+            for (s, t), c, j in zip(graph.edges, graph.edge_shared, graph.edge_jaccard, strict=True)
+        ],
+    }
+
+    comparison = None
+    if baseline is not None:
+        say(f"comparing release {rel.name} with {baseline.name}")
+        base_score = ds.scores[baseline.name]
+        if ds.task == "binary":
+            before = binary_losses(ds.target, base_score, baseline.threshold)[0].observed
+            after = losses[0].observed
+        else:
+            before = (ds.target - base_score) ** 2
+            after = (ds.target - score) ** 2
+        comp = compare_releases(
+            before,
+            after,
+            partition.row_region,
+            baseline=baseline.name,
+            candidate=rel.name,
+            counts=ds.task == "binary",
+            fdr=a.fdr,
+        )
+        comparison = {
+            "baseline": comp.baseline,
+            "candidate": comp.candidate,
+            "overall": comp.overall.as_dict(),
+            "regions": [c.as_dict() for c in comp.regions],
+            "worse": list(comp.worse),
+            "better": list(comp.better),
+            "baseline_overall": _metrics(ds, base_score, baseline.threshold, every, 0, seed),
+        }
+
+    node_lists: list[list[int]] = [[] for _ in range(ds.n_rows)]
+    for v, m in enumerate(graph.members):
+        for r in m.tolist():
+            node_lists[r].append(v)
+    members = pd.DataFrame(
+        {
+            "id": ds.ids,
+            "nodes": node_lists,
+            "region": partition.row_region,
+            "weak_regions": [
+                [wid for wid, mk in weak_mask.items() if mk[r]] for r in range(ds.n_rows)
+            ],
+            "half": np.where(discovery, "discovery", "confirmation"),
+        }
+    )
+    result = AnalysisResult(
+        model=config.model,
+        release=rel.name,
+        task=ds.task,
+        created=build_date(),
+        config=config.to_dict(),
+        provenance={
+            "fingerprint": ds.fingerprint,
+            "data_file": Path(ds.source).name,
+            "rows": ds.n_rows,
+            "rows_dropped": ds.n_dropped,
+            "features": list(ds.feature_names),
+            "encoding": ds.encoding,
+            "seed": seed,
+            "versions": _versions(),
+            "command": command,
+            "threshold": rel.threshold,
+            "score_column": rel.score,
+            "discovery_rows": int(discovery.sum()),
+            "confirmation_rows": int((~discovery).sum()),
+        },
+        overall=overall,
+        graph={
+            "settings": graph.settings,
+            "invariants": invariants(graph).as_dict(),
+            "regions": partition.n_regions,
+            "grid": grid,
+        },
+        search=[
+            {
+                "name": s.name,
+                "method": s.method,
+                "nodes": s.graph.n_nodes,
+                "edges": s.graph.n_edges,
+                "settings": s.graph.settings,
+                "features_used": [
+                    n for n, w in zip(ds.feature_names, s.weights, strict=True) if w > 0
+                ]
+                if s.weights is not None
+                else list(ds.feature_names),
+            }
+            for s in searched
+        ],
+        regions=regions,
+        weak_regions=weak_out,
+        candidates=[_finding_dict(f) for f in findings],
+        stability={
+            "runs": [
+                {
+                    "label": r.label,
+                    "kind": r.kind,
+                    "confirmed": r.confirmed,
+                    "found": dict(zip([w["id"] for w in weak_out], r.found, strict=True)),
+                }
+                for r in runs
+            ],
+        },
+        comparison=comparison,
+    )
+    return Audit(result=result, graph=graph_doc, members=members)

@@ -1,0 +1,117 @@
+"""Weak-region discovery and confirmation on small graphs whose answer is known."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from topoaudit.audit.search import SearchGraph
+from topoaudit.audit.stats import benjamini_hochberg
+from topoaudit.audit.weak import (
+    Losses,
+    binary_losses,
+    find_weak_regions,
+    merge_confirmed,
+    scan_statistic,
+    split_halves,
+)
+from topoaudit.mapper.graph import MapperGraph
+
+
+def test_scan_statistic_matches_the_poisson_likelihood_ratio():
+    # Kulldorff (1997): the log ratio of the Poisson likelihoods with a separate rate
+    # inside the region against one common rate, conditioned on the total.
+    o, e, n = 30.0, 20.0, 100.0
+    inside = stats.poisson.logpmf(30, 30) + stats.poisson.logpmf(70, 70)
+    common = stats.poisson.logpmf(30, 20) + stats.poisson.logpmf(70, 80)
+    assert scan_statistic(o, e, n) == pytest.approx(inside - common, abs=1e-9)
+    assert scan_statistic(10, 20, 100) == 0.0
+
+
+def test_binary_losses_expect_what_the_scores_promise():
+    y = np.array([0, 1, 1, 0])
+    p = np.array([0.9, 0.9, 0.2, 0.2])
+    err, fp, fn = binary_losses(y, p, 0.5)
+    assert err.observed.tolist() == [1, 0, 1, 0]
+    assert err.expected == pytest.approx([0.1, 0.1, 0.2, 0.2])
+    assert fp.observed.tolist() == [1, 0, 0, 0]
+    assert fn.observed.tolist() == [0, 0, 1, 0]
+    # the expected false positives and negatives add up to the expected errors
+    assert fp.expected + fn.expected == pytest.approx(err.expected)
+
+
+def test_split_is_seeded_stratified_and_halves_each_class():
+    y = np.r_[np.zeros(101, int), np.ones(51, int)]
+    a = split_halves(y.size, y, 3)
+    assert np.array_equal(a, split_halves(y.size, y, 3))
+    assert not np.array_equal(a, split_halves(y.size, y, 4))
+    assert abs(int(a[y == 0].sum()) - 50) <= 1 and abs(int(a[y == 1].sum()) - 25) <= 1
+
+
+def _chain_graph(n_nodes: int, rows_per_node: int) -> MapperGraph:
+    """A path of nodes, neighbours sharing one row: node i holds a block of rows."""
+    members = []
+    for i in range(n_nodes):
+        start = i * rows_per_node
+        members.append(np.arange(start, start + rows_per_node + 1))
+    members[-1] = members[-1][:-1]
+    return MapperGraph.from_members(members, n_rows=n_nodes * rows_per_node)
+
+
+def _planted(hot: range, n_nodes=40, per=50, base=0.2, lift=2.5, seed=0):
+    rng = np.random.default_rng(seed)
+    g = _chain_graph(n_nodes, per)
+    n = g.n_rows
+    q = np.full(n, base)
+    pocket = np.zeros(n, dtype=bool)
+    for i in hot:
+        pocket[i * per : (i + 1) * per] = True
+    errors = (rng.uniform(size=n) < np.where(pocket, base * lift, base)).astype(float)
+    return g, Losses("error", errors, q), pocket
+
+
+def test_a_planted_run_of_hot_nodes_is_confirmed_near_its_size():
+    g, loss, pocket = _planted(range(10, 16))
+    discovery = split_halves(g.n_rows, None, 0)
+    found = find_weak_regions([SearchGraph("chain", g, "grow")], [loss], discovery)
+    weak = merge_confirmed(found)
+    assert len(weak) == 1
+    rows = weak[0].rows
+    jaccard = np.sum(pocket[rows]) / (rows.size + pocket.sum() - np.sum(pocket[rows]))
+    assert jaccard >= 0.7
+    assert weak[0].confirmation.ratio > 1.5
+
+
+def test_confirmation_uses_only_the_other_half_and_bh_adjusts_across_candidates():
+    g, loss, _ = _planted(range(10, 16))
+    discovery = split_halves(g.n_rows, None, 0)
+    found = find_weak_regions([SearchGraph("chain", g, "grow")], [loss], discovery)
+    tested = [f for f in found if f.tested]
+    assert tested
+    for f in tested:
+        conf_rows = f.rows[~discovery[f.rows]]
+        assert f.confirmation.rows == conf_rows.size
+        assert f.confirmation.observed == loss.observed[conf_rows].sum()
+    adjusted = benjamini_hochberg([f.p_value for f in tested])
+    assert [f.p_adjusted for f in tested] == pytest.approx(adjusted.tolist())
+
+
+def test_no_pocket_confirms_nothing_over_many_seeds():
+    hits = 0
+    for seed in range(30):
+        g, loss, _ = _planted(range(0), seed=seed)
+        discovery = split_halves(g.n_rows, None, seed)
+        found = find_weak_regions([SearchGraph("chain", g, "grow")], [loss], discovery)
+        hits += bool(merge_confirmed(found))
+    assert hits <= 3  # at most 10% of runs, the bound the audit promises under no pocket
+
+
+def test_a_region_too_small_to_confirm_is_reported_untested():
+    g, loss, _ = _planted(range(10, 11), per=20)
+    discovery = split_halves(g.n_rows, None, 0)
+    found = find_weak_regions([SearchGraph("chain", g, "grow")], [loss], discovery, min_rows=30)
+    small = [f for f in found if not f.tested]
+    assert small
+    assert all("fewer than 30: not tested" in f.note for f in small)
+    assert all(not f.confirmed for f in small)
