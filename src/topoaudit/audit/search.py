@@ -40,6 +40,7 @@ import numpy as np
 from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.model_selection import KFold
 from sklearn.neighbors import NearestNeighbors
+from threadpoolctl import threadpool_limits
 
 from topoaudit.audit.weak import Losses
 from topoaudit.mapper.clustering import KMeansMesh
@@ -180,7 +181,24 @@ def search_graphs(
     *,
     random_state: int = 0,
 ) -> list[SearchGraph]:
-    """Build the ``features`` and ``error_aware`` search graphs of standardised ``X``."""
+    """Build the ``features`` and ``error_aware`` search graphs of standardised ``X``.
+
+    The many small models here run on one OpenMP thread each: on folds of a few thousand
+    rows, thread start-up costs more than a second thread gains, and one thread cannot
+    oversubscribe the cores when other work runs beside it.
+    """
+    with threadpool_limits(limits=1, user_api="openmp"):
+        return _search_graphs(X, losses, discovery, settings, random_state=random_state)
+
+
+def _search_graphs(
+    X: np.ndarray,
+    losses: list[Losses],
+    discovery: np.ndarray,
+    settings: SearchSettings,
+    *,
+    random_state: int,
+) -> list[SearchGraph]:
     mesh = KMeansMesh(node_rows=settings.node_rows, random_state=random_state)
     features = MapperBuilder(
         "pca",

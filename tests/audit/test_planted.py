@@ -1,0 +1,86 @@
+"""Acceptance simulations: planted pockets are found, and no pocket means no finding.
+
+These run the search-and-confirm step alone (search graphs, discovery, confirmation,
+Benjamini–Hochberg) on the simulations of ``reference_checks.planted_pockets``; the full
+audit with its stability grid on larger data runs under ``make bench``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from reference_checks.planted_pockets import simulate
+from topoaudit.audit.search import SearchSettings, search_graphs
+from topoaudit.audit.weak import (
+    binary_losses,
+    find_weak_regions,
+    merge_confirmed,
+    regression_losses,
+    split_halves,
+)
+
+
+def _standardise(X: np.ndarray) -> np.ndarray:
+    return (X - X.mean(axis=0)) / X.std(axis=0)
+
+
+def _confirmed(sim, seed: int):
+    X = _standardise(sim.X)
+    losses = binary_losses(sim.y, sim.score, sim.threshold)
+    discovery = split_halves(sim.y.size, sim.y, seed)
+    graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=seed)
+    return merge_confirmed(find_weak_regions(graphs, losses, discovery, random_state=seed))
+
+
+def _best_jaccard(found, pocket: np.ndarray) -> float:
+    best = 0.0
+    for f in found:
+        inter = int(pocket[f.rows].sum())
+        best = max(best, inter / (f.rows.size + int(pocket.sum()) - inter))
+    return best
+
+
+@pytest.mark.slow
+def test_curved_pocket_is_confirmed_with_jaccard_half_in_nine_of_ten_seeds():
+    scores = []
+    for seed in range(10):
+        sim = simulate("curved", 20_000, seed=seed)
+        scores.append(_best_jaccard(_confirmed(sim, seed), sim.pocket))
+    assert sum(j >= 0.5 for j in scores) >= 9, np.round(scores, 2).tolist()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("shape", ["island", "flare"], ids=["island", "flare_tip"])
+def test_island_and_flare_tip_pockets_are_confirmed(shape):
+    for seed in range(3):
+        sim = simulate(shape, 20_000, seed=seed)
+        found = _confirmed(sim, seed)
+        assert _best_jaccard(found, sim.pocket) >= 0.5, (shape, seed)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("shape", ["calibrated", "inflated"])
+def test_no_pocket_confirms_a_region_in_at_most_a_tenth_of_fifty_runs(shape):
+    hits = 0
+    for seed in range(50):
+        sim = simulate(shape, 3_000, seed=1000 + seed)
+        hits += bool(_confirmed(sim, seed))
+    assert hits <= 5, f"{hits} of 50 runs confirmed a region with no pocket planted"
+
+
+@pytest.mark.slow
+def test_regression_pocket_of_large_residuals_is_found():
+    rng = np.random.default_rng(5)
+    n = 8_000
+    X = rng.normal(size=(n, 6))
+    truth = 2.0 * X[:, 0] - X[:, 1] + 0.5 * X[:, 2] ** 2
+    pocket = np.hypot(X[:, 0] - 1.0, X[:, 1] + 0.5) < 0.45
+    noise = rng.normal(size=n) * np.where(pocket, 3.0, 1.0)
+    y = truth + noise
+    losses = regression_losses(y, truth)
+    discovery = split_halves(n, None, 5)
+    graphs = search_graphs(_standardise(X), losses, discovery, SearchSettings(), random_state=5)
+    found = merge_confirmed(find_weak_regions(graphs, losses, discovery, n_permutations=500))
+    assert found
+    assert _best_jaccard(found, pocket) >= 0.5

@@ -1,0 +1,126 @@
+"""The audit end to end: a CSV and a config in, a deterministic bundle out."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from reference_checks.planted_pockets import simulate
+from topoaudit.audit.run import run_audit
+from topoaudit.cli import main
+from topoaudit.config import load_config
+
+CONFIG = """
+model = "sim-model"
+seed = 3
+
+[data]
+path = "rows.csv"
+id = "row_id"
+target = "outcome"
+categorical = {{ site = "onehot" }}
+
+[[release]]
+name = "1.0"
+score = "score_old"
+
+[[release]]
+name = "1.1"
+score = "score_new"
+
+[audit]
+bootstrap_resamples = {resamples}
+stability_intervals = [0, 2]
+stability_overlaps = [0.0]
+"""
+
+
+@pytest.fixture(scope="module")
+def project(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("audit")
+    sim = simulate("island", 4_000, n_features=6, seed=2)
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame(sim.X, columns=[f"f{i}" for i in range(6)])
+    frame.insert(0, "row_id", [f"R{i:05d}" for i in range(sim.y.size)])
+    frame["site"] = rng.choice(["north", "south"], sim.y.size)
+    frame["outcome"] = sim.y
+    frame["score_new"] = sim.score
+    frame["score_old"] = np.clip(sim.score + rng.normal(0, 0.08, sim.y.size), 0, 1)
+    frame.to_csv(folder / "rows.csv", index=False)
+    (folder / "audit.toml").write_text(CONFIG.format(resamples=1), encoding="utf-8")
+    return folder, sim
+
+
+@pytest.fixture(scope="module")
+def audit(project):
+    folder, _ = project
+    return run_audit(load_config(folder / "audit.toml"))
+
+
+def test_the_region_table_covers_every_row_once(audit, project):
+    r = audit.result
+    assert sum(reg["rows"] for reg in r.regions) == r.provenance["rows"] == 4_000
+    assert audit.members["region"].isin([reg["id"] for reg in r.regions]).all()
+
+
+def test_the_island_pocket_is_a_confirmed_weak_region(audit, project):
+    _, sim = project
+    r = audit.result
+    assert r.weak_regions, "no weak region confirmed"
+    w = r.weak_regions[0]
+    in_w1 = audit.members["weak_regions"].map(lambda regions: "W1" in regions)
+    rows = audit.members.loc[in_w1, "id"].str[1:].astype(int).to_numpy()
+    inter = int(sim.pocket[rows].sum())
+    assert inter / (rows.size + sim.pocket.sum() - inter) >= 0.5
+    assert w["confirmed"] and w["p_adjusted"] <= 0.05
+    assert w["confirmation"]["rows"] >= 30
+    assert w["description"]["rule"]["text"] != "no rule"
+    assert w["local_model"]["verdict"] in ("local model better", "no clear gain")
+    assert 0.0 <= w["stability"] <= 1.0
+
+
+def test_each_finding_says_which_graph_it_came_from(audit):
+    graphs = {s["name"] for s in audit.result.search}
+    assert graphs == {"features", "error_aware"}
+    assert all(c["graph"] in graphs for c in audit.result.candidates)
+
+
+def test_the_later_release_is_compared_with_the_earlier(audit):
+    comp = audit.result.comparison
+    assert comp["baseline"] == "1.0" and comp["candidate"] == "1.1"
+    assert sum(c["rows"] for c in comp["regions"]) == 4_000
+
+
+def test_bundle_is_byte_identical_for_the_same_input(audit, project, tmp_path, monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
+    folder, _ = project
+    a = run_audit(load_config(folder / "audit.toml")).write(tmp_path / "a")
+    b = run_audit(load_config(folder / "audit.toml")).write(tmp_path / "b")
+    for name in ("analysis.json", "graph.json", "members.parquet"):
+        assert (a / name).read_bytes() == (b / name).read_bytes(), name
+    doc = json.loads((a / "analysis.json").read_text())
+    assert doc["created"] == "2026-01-01"
+    assert len(doc["provenance"]["fingerprint"]) == 64
+
+
+def test_graph_json_holds_no_row_ids(audit):
+    text = json.dumps(audit.graph)
+    assert "R00001" not in text
+    assert all("members" not in node for node in audit.graph["nodes"])
+
+
+def test_cli_audit_writes_the_bundle_and_refuses_a_non_empty_folder(project, tmp_path, capsys):
+    folder, _ = project
+    out = tmp_path / "bundle"
+    assert main(["audit", str(folder / "audit.toml"), "--out", str(out), "--quiet"]) == 0
+    assert "sim-model 1.1: 4000 rows" in capsys.readouterr().out
+    assert sorted(p.name for p in out.iterdir()) == [
+        "analysis.json",
+        "graph.json",
+        "members.parquet",
+    ]
+    assert main(["audit", str(folder / "audit.toml"), "--out", str(out), "--quiet"]) == 2
+    assert "the output folder exists and is not empty" in capsys.readouterr().err
