@@ -33,6 +33,7 @@ check: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
+	$(BIN)/python -m tests.benchmarks.audit
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests reference_checks
