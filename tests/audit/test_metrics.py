@@ -273,3 +273,19 @@ def test_regression_bootstrap_intervals_are_seeded_and_bracket_the_value() -> No
         est = first[name]
         assert est.low <= est.value <= est.high, name
     assert math.isnan(first["rows"].low)
+
+
+def test_calibration_bins_match_sklearn_calibration_curve():
+    from sklearn.calibration import calibration_curve
+
+    from topoaudit.audit.metrics import calibration_bins
+
+    rng = np.random.default_rng(8)
+    p = rng.uniform(size=3000)
+    y = (rng.uniform(size=3000) < p**1.3).astype(int)
+    bins = calibration_bins(y, p)
+    # reference: sklearn.calibration.calibration_curve, 10 uniform bins, empty bins dropped
+    prob_true, prob_pred = calibration_curve(y, p, n_bins=10, strategy="uniform")
+    assert [b["observed_rate"] for b in bins] == pytest.approx(prob_true.tolist(), abs=1e-12)
+    assert [b["mean_score"] for b in bins] == pytest.approx(prob_pred.tolist(), abs=1e-12)
+    assert sum(b["rows"] for b in bins) == 3000

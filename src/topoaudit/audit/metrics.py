@@ -23,6 +23,7 @@ from topoaudit.audit.stats import bootstrap_interval, wilson_interval
 __all__ = [
     "Estimate",
     "binary_metrics",
+    "calibration_bins",
     "expected_calibration_error",
     "log_loss",
     "regression_metrics",
@@ -68,6 +69,34 @@ def expected_calibration_error(y: np.ndarray, p: np.ndarray, n_bins: int = 10) -
     used = count > 0
     gap = np.abs(sum_y[used] - sum_p[used])
     return float(gap.sum() / y.size)
+
+
+def calibration_bins(y: np.ndarray, p: np.ndarray, n_bins: int = 10) -> list[dict[str, float]]:
+    """Reliability-diagram bins (the bins of :func:`expected_calibration_error`): for each
+    non-empty equal-width score bin, its bounds, rows, mean score and observed rate.
+
+    Examples
+    --------
+    >>> [b["rows"] for b in calibration_bins(np.array([0, 1, 1]), np.array([0.05, 0.5, 0.95]))]
+    [1, 1, 1]
+    """
+    y = np.asarray(y, dtype=np.float64)
+    p = np.asarray(p, dtype=np.float64)
+    bins = np.minimum((p * n_bins).astype(np.int64), n_bins - 1)
+    out = []
+    for b in range(n_bins):
+        in_bin = bins == b
+        if in_bin.any():
+            out.append(
+                {
+                    "low": b / n_bins,
+                    "high": (b + 1) / n_bins,
+                    "rows": int(in_bin.sum()),
+                    "mean_score": float(p[in_bin].mean()),
+                    "observed_rate": float(y[in_bin].mean()),
+                }
+            )
+    return out
 
 
 def _auc(y: np.ndarray, p: np.ndarray, min_class_rows: int) -> float:

@@ -20,7 +20,12 @@ from sklearn.preprocessing import StandardScaler
 from topoaudit.audit.compare import compare_releases
 from topoaudit.audit.describe import describe_region
 from topoaudit.audit.local import local_model_test
-from topoaudit.audit.metrics import binary_metrics, metrics_as_dict, regression_metrics
+from topoaudit.audit.metrics import (
+    binary_metrics,
+    calibration_bins,
+    metrics_as_dict,
+    regression_metrics,
+)
 from topoaudit.audit.regions import partition_graph
 from topoaudit.audit.result import AnalysisResult, build_date
 from topoaudit.audit.search import SearchSettings, search_graphs
@@ -233,14 +238,15 @@ def run_audit(
         rows = partition.rows_of(r)
         if rows.size == 0:
             continue
-        regions.append(
-            {
-                "id": r,
-                "rows": int(rows.size),
-                "nodes": int(np.sum(partition.node_region == r)),
-                "metrics": _metrics(ds, score, rel.threshold, rows, 0, seed),
-            }
-        )
+        entry = {
+            "id": r,
+            "rows": int(rows.size),
+            "nodes": int(np.sum(partition.node_region == r)),
+            "metrics": _metrics(ds, score, rel.threshold, rows, 0, seed),
+        }
+        if ds.task == "binary":
+            entry["calibration"] = calibration_bins(ds.target[rows], score[rows])
+        regions.append(entry)
     weak_mask = {
         w["id"]: np.isin(np.arange(ds.n_rows), f.rows) for w, f in zip(weak_out, weak, strict=True)
     }

@@ -56,9 +56,6 @@ __all__ = [
 ]
 
 
-WEIGHTING = "select"
-
-
 @dataclass(frozen=True)
 class SearchSettings:
     """Settings of the two search graphs."""
@@ -123,11 +120,24 @@ def permutation_drops(
 
 
 def relevance_weights(
-    X: np.ndarray, loss: Losses, discovery: np.ndarray, *, folds: int = 5, random_state: int = 0
+    X: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    *,
+    folds: int = 5,
+    max_rows: int = 20_000,
+    random_state: int = 0,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """0/1 weight per feature (see module docstring, step 1) and the mean importances."""
-    d = np.flatnonzero(discovery)
-    excess = _excess(loss, d)
+    """0/1 weight per feature (see module docstring, step 1) and the mean importances.
+
+    The excess is computed on the whole discovery half; the importance model sees a seeded
+    sample of at most ``max_rows`` of its rows, which bounds the cost on large data.
+    """
+    d_all = np.flatnonzero(discovery)
+    excess_all = _excess(loss, d_all)
+    rng = np.random.default_rng([random_state, 43])
+    pick = np.sort(rng.choice(d_all.size, size=min(max_rows, d_all.size), replace=False))
+    d, excess = d_all[pick], excess_all[pick]
     draws = []
     splitter = KFold(n_splits=folds, shuffle=True, random_state=random_state)
     for train, test in splitter.split(d):
@@ -149,8 +159,6 @@ def relevance_weights(
     keep = (mean > 3 * se) & (mean > 0)
     if not keep.any():
         return np.ones(X.shape[1]), mean
-    if WEIGHTING == "soft":
-        return np.where(keep, np.clip(mean / mean.max(), 0, 1), 0.0), mean
     keep &= mean >= 0.25 * mean.max()
     return keep.astype(float), mean
 
@@ -160,7 +168,8 @@ def smoothed_excess(Z: np.ndarray, loss: Losses, discovery: np.ndarray, k: int) 
     d = np.flatnonzero(discovery)
     excess = _excess(loss, d)
     k = int(min(k, d.size - 1))
-    nn = NearestNeighbors(n_neighbors=k + 1, algorithm="brute").fit(Z[d])
+    algorithm = "auto" if Z.shape[1] <= 8 else "brute"
+    nn = NearestNeighbors(n_neighbors=k + 1, algorithm=algorithm).fit(Z[d])
     lens = np.empty(Z.shape[0])
     for start in range(0, Z.shape[0], 4096):
         stop = min(start + 4096, Z.shape[0])
@@ -212,7 +221,9 @@ def _search_graphs(
     weights, importance = relevance_weights(
         X, total, discovery, folds=settings.folds, random_state=random_state
     )
-    Z = X * weights
+    # the weights are 0 or 1: the weighted space is the kept columns, which keeps the
+    # neighbour search low-dimensional (tree indexes are fast there)
+    Z = np.ascontiguousarray(X[:, weights > 0])
     lens = smoothed_excess(Z, total, discovery, settings.k(int(discovery.sum())))
     aware = MapperBuilder(
         lens,
