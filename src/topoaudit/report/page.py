@@ -1,0 +1,459 @@
+"""The Markdown page of one analysis, and its charts.
+
+The page is built from ``analysis.json`` and ``graph.json`` alone. Each chart appears
+twice: as an SVG file rendered by vl-convert (so the Markdown reads in a pull-request
+diff) and as its Vega-Lite spec inlined in a ``<script type="application/json">`` block,
+which the site's chart loader turns into the interactive chart (inlined, because
+browsers refuse to fetch JSON from ``file://`` pages).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import networkx as nx
+import pandas as pd
+
+from topoaudit.report import views
+from topoaudit.report.text import count, escape, pvalue, rate, signed
+
+__all__ = ["Page", "build_page", "node_layout", "render_bundle"]
+
+STANDING_CAUTIONS = (
+    "**Sample sizes.** Every estimate on this page comes from a finite sample; small "
+    "regions have wide intervals, and a region's rate can move a lot between samples.",
+    "**Multiple testing.** Many candidate regions were searched for; findings are "
+    "controlled for the false discovery rate (Benjamini–Hochberg) across all candidates "
+    "tested, which limits, but does not remove, the chance that a finding is spurious.",
+    "**Settings dependence.** A Mapper graph depends on its filter function, cover and "
+    "clusterer. The stability section shows how often each weak region is found again "
+    "under other settings and subsamples; a region found rarely is a weak lead.",
+    "**Regions are not causes.** A region describes where errors concentrate, in terms "
+    "of the features; it does not say why, and the surrogate rules are approximations.",
+    "**Not a fairness certification.** This audit does not test any fairness criterion "
+    "and does not show that a model treats any group fairly.",
+    "**Policy.** These findings inform, and do not replace, the review that your "
+    "organisation's model-risk policy and the regulation that applies require.",
+)
+
+
+@dataclass(frozen=True)
+class Page:
+    """The Markdown text of a page and its charts (name -> Vega-Lite spec)."""
+
+    markdown: str
+    charts: dict[str, dict[str, Any]]
+
+
+def node_layout(graph: dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
+    """Node positions from networkx's spring layout with a fixed seed, rounded so the
+    spec is stable."""
+    g = nx.Graph()
+    g.add_nodes_from(n["id"] for n in graph["nodes"])
+    g.add_edges_from((e["source"], e["target"]) for e in graph["links"])
+    pos = nx.spring_layout(g, seed=seed, iterations=200) if g.number_of_nodes() else {}
+    return pd.DataFrame(
+        {
+            "node": list(pos),
+            "x": [round(float(p[0]), 4) for p in pos.values()],
+            "y": [round(float(p[1]), 4) for p in pos.values()],
+        }
+    )
+
+
+def _graph_frames(graph: dict[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    layout = node_layout(graph).set_index("node")
+    nodes = pd.DataFrame(
+        {
+            "node": [n["id"] for n in graph["nodes"]],
+            "rows": [n["rows"] for n in graph["nodes"]],
+            "region": [n["region"] for n in graph["nodes"]],
+            "loss": [n["loss"] for n in graph["nodes"]],
+            "expected_loss": [n["expected_loss"] for n in graph["nodes"]],
+            "excess": [round(n["loss"] - n["expected_loss"], 6) for n in graph["nodes"]],
+            "mean_score": [n["mean_score"] for n in graph["nodes"]],
+            "weak": [", ".join(n["weak_regions"]) for n in graph["nodes"]],
+        }
+    )
+    nodes["x"] = nodes["node"].map(layout["x"])
+    nodes["y"] = nodes["node"].map(layout["y"])
+    edges = pd.DataFrame(
+        {
+            "x": [layout.loc[e["source"], "x"] for e in graph["links"]],
+            "y": [layout.loc[e["source"], "y"] for e in graph["links"]],
+            "x2": [layout.loc[e["target"], "x"] for e in graph["links"]],
+            "y2": [layout.loc[e["target"], "y"] for e in graph["links"]],
+        }
+    )
+    return nodes, edges
+
+
+def _headline(task: str) -> tuple[str, str]:
+    return ("error_rate", "error rate") if task == "binary" else ("mae", "mean absolute error")
+
+
+def _chart_block(name: str, spec: dict[str, Any], alt_text: str) -> str:
+    data = json.dumps(spec, sort_keys=True, separators=(",", ":")).replace("</", "<\\/")
+    return (
+        f'<figure class="ta-chart" data-chart="{name}">\n'
+        f'<img src="charts/{name}.svg" alt="{escape(alt_text)}">\n'
+        f'<script type="application/json" class="ta-spec">{data}</script>\n'
+        "</figure>\n"
+    )
+
+
+def _cautions(a: dict[str, Any]) -> list[str]:
+    out = []
+    min_rows = a["config"]["audit"]["min_rows"]
+    for w in a["weak_regions"]:
+        conf = w["confirmation"]
+        m = w["metrics"]
+        key = "error_rate" if a["task"] == "binary" else None
+        if key and m[key]["low"] is not None and m[key]["high"] is not None:
+            width = (m[key]["high"] - m[key]["low"]) * 100
+            if conf["rows"] < 4 * min_rows or width > 15:
+                out.append(
+                    f"Weak region {w['id']} has {count(conf['rows'])} rows in the confirmation "
+                    f"half; its error-rate interval spans {width:.0f} points."
+                )
+        if w.get("stability") is not None and w["stability"] < 0.5:
+            out.append(
+                f"Weak region {w['id']} was found again in only {w['stability'] * 100:.0f}% of "
+                "reruns with other settings or samples: treat it as a lead, not a finding."
+            )
+    untested = [c for c in a["candidates"] if not c["tested"]]
+    if untested:
+        out.append(
+            f"{len(untested)} candidate region(s) had fewer than {min_rows} confirmation rows "
+            "and were not tested; they are neither confirmed nor cleared."
+        )
+    for r in a["regions"]:
+        if r["rows"] < min_rows:
+            out.append(
+                f"Region {r['id']} has only {count(r['rows'])} rows; its metrics are fragile."
+            )
+    dropped = a["provenance"]["rows_dropped"]
+    if dropped:
+        out.append(f"{count(dropped)} rows with missing values were dropped before the audit.")
+    return out
+
+
+def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
+    """Build the page of analysis ``a`` (the parsed analysis.json)."""
+    key, label = _headline(a["task"])
+    charts: dict[str, dict[str, Any]] = {}
+    lines: list[str] = []
+    model, release = escape(a["model"]), escape(a["release"])
+    prov = a["provenance"]
+    o = a["overall"]
+    lines += [f"# {model}, release {release}", ""]
+    lines += [
+        f"Audit of {prov['rows']:,} validation rows, {a['created']}. "
+        f"{len(a['weak_regions'])} weak region(s) confirmed out of "
+        f"{sum(c['tested'] for c in a['candidates'])} candidate(s) tested.",
+        "",
+        "## At a glance",
+        "",
+        "| | |",
+        "|---|---|",
+        f"| model | {model} |",
+        f"| release | {release} (score column {escape(prov['score_column'])}"
+        + (f", threshold {prov['threshold']}" if a["task"] == "binary" else "")
+        + ") |",
+        f"| rows | {count(prov['rows'])} (discovery {count(prov['discovery_rows'])}, "
+        f"confirmation {count(prov['confirmation_rows'])}) |",
+        f"| data fingerprint | `{prov['fingerprint']}` |",
+    ]
+    for m, name in (
+        [
+            ("error_rate", "error rate"),
+            ("false_positive_rate", "false positive rate"),
+            ("false_negative_rate", "false negative rate"),
+            ("roc_auc", "ROC AUC"),
+            ("brier", "Brier score"),
+            ("ece", "expected calibration error"),
+        ]
+        if a["task"] == "binary"
+        else [
+            ("mae", "mean absolute error"),
+            ("rmse", "RMSE"),
+            ("bias", "mean residual"),
+            ("r2", "R²"),
+        ]
+    ):
+        est = o[m]
+        interval = (
+            f" (95% interval {rate(est['low'])} to {rate(est['high'])})"
+            if est["low"] is not None
+            else ""
+        )
+        lines.append(f"| {name} | {rate(est['value'])}{interval} |")
+    lines.append(f"| weak regions confirmed | {len(a['weak_regions'])} |")
+    lines.append("")
+
+    lines += ["## Where it falls short", ""]
+    if not a["weak_regions"]:
+        lines += [
+            "No weak region was confirmed: no candidate region found on the discovery half "
+            "showed, on the confirmation half, more errors than the release's own scores "
+            f"promise, at a false discovery rate of {a['config']['audit']['fdr']}.",
+            "",
+        ]
+    for w in a["weak_regions"]:
+        d, c = w["discovery"], w["confirmation"]
+        desc = w["description"]
+        lines += [
+            f"### {w['id']}: {count(w['rows'])} rows ({w['share_of_rows'] * 100:.1f}% of all), "
+            f"{escape(w['kind'].replace('_', ' '))}s",
+            "",
+            f"Found in the {escape(w['graph'].replace('_', '-'))} graph"
+            + (
+                f", and again in {', '.join(escape(x) for x in w['also_found'])}"
+                if w["also_found"]
+                else ""
+            )
+            + ".",
+            "",
+            "| | discovery half | confirmation half |",
+            "|---|---|---|",
+            f"| rows | {count(d['rows'])} | {count(c['rows'])} |",
+            f"| observed rate | {rate(d['observed_rate'])} | {rate(c['observed_rate'])} |",
+            f"| rate the scores promise | {rate(d['expected_rate'])} | "
+            f"{rate(c['expected_rate'])} |",
+            f"| observed / promised | {rate(d['ratio'], 2)} | {rate(c['ratio'], 2)} |",
+            "",
+            f"Excess on the confirmation half: {signed(w['effect'])} per row; one-sided "
+            f"p-value {pvalue(w['p_value'])}, adjusted (Benjamini–Hochberg) "
+            f"{pvalue(w['p_adjusted'])}.",
+            "",
+            "Who is in it (largest standardised mean differences against the other rows):",
+            "",
+            "| feature | mean inside | mean outside | standardised difference |",
+            "|---|---|---|---|",
+        ]
+        for fc in desc["contrasts"]:
+            lines.append(
+                f"| {escape(fc['feature'])} | {rate(fc['region_mean'])} | "
+                f"{rate(fc['rest_mean'])} | {signed(fc['smd'], 2)} |"
+            )
+        lines.append("")
+        if desc["categories"]:
+            lines.append(
+                "Over-represented categories: "
+                + "; ".join(
+                    f"{escape(cc['feature'])} = {escape(cc['category'])} "
+                    f"({cc['region_share'] * 100:.0f}% inside, {cc['rest_share'] * 100:.0f}% "
+                    "outside)"
+                    for cc in desc["categories"]
+                )
+                + "."
+            )
+            lines.append("")
+        rule = desc["rule"]
+        lines += [
+            f"Approximate rule (a depth-{rule['depth']} surrogate tree, an approximation of "
+            f"the region): {escape(rule['text'])}; precision {rate(rule['precision'], 2)}, "
+            f"recall {rate(rule['recall'], 2)}.",
+            "",
+        ]
+        lm = w["local_model"]
+        if lm["verdict"] == "too small to try":
+            lines.append("Local model: the region is too small to try one.")
+        else:
+            lines.append(
+                f"Local model ({escape(lm['model'])}, {lm['folds']}-fold): held-out loss "
+                f"{rate(lm['local_loss'])} against the release's {rate(lm['release_loss'])}; "
+                f"difference {signed(lm['difference'])} (95% interval {signed(lm['low'])} to "
+                f"{signed(lm['high'])}): **{lm['verdict']}**."
+            )
+        stab = w.get("stability")
+        lines += [
+            "",
+            "Stability: "
+            + (
+                f"found again in {stab * 100:.0f}% of reruns." if stab is not None else "not rerun."
+            ),
+            "",
+        ]
+
+    nodes, edges = _graph_frames(graph)
+    gchart = views.graph_view(
+        nodes, edges, title="The shape of the validation data (Mapper graph)"
+    ).to_dict()
+    charts["graph"] = gchart
+    inv = a["graph"]["invariants"]
+    lines += [
+        "## The shape of the data",
+        "",
+        f"{inv['n_nodes']} nodes, {inv['n_edges']} edges, {inv['n_components']} connected "
+        f"component(s), cycle rank {inv['cycle_rank']}, {inv['n_leaves']} leaves, "
+        f"{inv['n_branch_points']} branch points. Node size shows rows; colour shows the "
+        "metric picked in the selector. Weak regions were searched for on separate search "
+        "graphs (see how to reproduce); here a node is ringed when at least half of its "
+        "rows belong to a weak region.",
+        "",
+        _chart_block("graph", gchart, "Mapper graph of the validation data"),
+    ]
+
+    reg = pd.DataFrame(
+        {
+            "region": [f"region {r['id']}" for r in a["regions"]],
+            "value": [r["metrics"][key]["value"] for r in a["regions"]],
+            "low": [r["metrics"][key]["low"] for r in a["regions"]],
+            "high": [r["metrics"][key]["high"] for r in a["regions"]],
+        }
+    )
+    if a["task"] != "binary":
+        reg["low"], reg["high"] = reg["value"], reg["value"]
+    charts["regions"] = views.region_error_view(
+        reg, overall=o[key]["value"], metric_title=label
+    ).to_dict()
+    lines += [
+        "## Regions",
+        "",
+        f"The graph is partitioned into {len(a['regions'])} regions (Louvain communities); "
+        "every row has one home region and the table adds up to the whole data set.",
+        "",
+        _chart_block("regions", charts["regions"], f"{label} by region"),
+        f"| region | rows | nodes | {label} | 95% interval |",
+        "|---|---|---|---|---|",
+    ]
+    for r in a["regions"]:
+        est = r["metrics"][key]
+        lines.append(
+            f"| {r['id']} | {count(r['rows'])} | {r['nodes']} | {rate(est['value'])} | "
+            f"{rate(est['low'])} to {rate(est['high'])} |"
+        )
+    lines.append(
+        f"| all | {count(prov['rows'])} | {inv['n_nodes']} | {rate(o[key]['value'])} | "
+        f"{rate(o[key]['low'])} to {rate(o[key]['high'])} |"
+    )
+    lines.append("")
+    if a["task"] == "binary":
+        bins = pd.DataFrame(
+            [
+                {"region": f"region {r['id']}", **b}
+                for r in a["regions"]
+                for b in r.get("calibration", [])
+            ]
+        )
+        if not bins.empty:
+            charts["calibration"] = views.calibration_view(bins).to_dict()
+            lines += [
+                _chart_block("calibration", charts["calibration"], "calibration curves by region"),
+                "",
+            ]
+
+    if a["weak_regions"] and a["stability"]["runs"]:
+        runs = pd.DataFrame(
+            [
+                {"run": r["label"], "region": wid, "found": "found again" if f else "not found"}
+                for r in a["stability"]["runs"]
+                for wid, f in r["found"].items()
+            ]
+        )
+        charts["stability"] = views.stability_view(runs).to_dict()
+        lines += [
+            "## Stability",
+            "",
+            _chart_block("stability", charts["stability"], "stability of weak regions"),
+            "",
+        ]
+    tested_local = [
+        w for w in a["weak_regions"] if w["local_model"]["verdict"] != "too small to try"
+    ]
+    if tested_local:
+        lm = pd.DataFrame(
+            {
+                "region": [w["id"] for w in tested_local],
+                "value": [w["local_model"]["difference"] for w in tested_local],
+                "low": [w["local_model"]["low"] for w in tested_local],
+                "high": [w["local_model"]["high"] for w in tested_local],
+            }
+        )
+        charts["local_models"] = views.local_model_view(lm).to_dict()
+        lines += [
+            "## Local models",
+            "",
+            _chart_block("local_models", charts["local_models"], "local model results"),
+            "",
+        ]
+
+    comp = a.get("comparison")
+    if comp:
+        ch = pd.DataFrame(
+            {
+                "region": [f"region {c['region']}" for c in comp["regions"]],
+                "value": [c["change"] for c in comp["regions"]],
+                "low": [c["low"] for c in comp["regions"]],
+                "high": [c["high"] for c in comp["regions"]],
+            }
+        )
+        charts["comparison"] = views.comparison_view(
+            ch, baseline=comp["baseline"], candidate=comp["candidate"]
+        ).to_dict()
+        ov = comp["overall"]
+        lines += [
+            f"## Against release {escape(comp['baseline'])}",
+            "",
+            f"On the same rows, the error rate moved from {rate(ov['before'])} to "
+            f"{rate(ov['after'])} ({signed(ov['change'])}; exact McNemar p-value "
+            f"{pvalue(ov['p_value'])}). Regions that got worse: "
+            f"{', '.join(str(x) for x in comp['worse']) or 'none'}; better: "
+            f"{', '.join(str(x) for x in comp['better']) or 'none'} (Benjamini–Hochberg "
+            "across regions).",
+            "",
+            _chart_block("comparison", charts["comparison"], "change in error by region"),
+            "",
+        ]
+
+    lines += ["## Cautions", ""]
+    lines += [f"- {c}" for c in _cautions(a)]
+    lines += [f"- {c}" for c in STANDING_CAUTIONS]
+    lines.append("")
+
+    v = prov["versions"]
+    lines += [
+        "## How to reproduce",
+        "",
+        "```",
+        prov["command"] or f"topoaudit audit CONFIG --out BUNDLE --release {a['release']}",
+        "```",
+        "",
+        f"- seed {prov['seed']}; data file {escape(prov['data_file'])}, fingerprint "
+        f"`{prov['fingerprint']}`",
+        f"- graph shown: {escape(a['graph']['settings'].get('filter', ''))}, "
+        f"{escape(a['graph']['settings'].get('cover', ''))}",
+        "- search graphs: "
+        + "; ".join(
+            f"{escape(s['name'])} ({s['nodes']} nodes, features used: "
+            f"{', '.join(escape(f) for f in s['features_used'])})"
+            for s in a["search"]
+        ),
+        "- versions: " + ", ".join(f"{escape(k)} {escape(val)}" for k, val in sorted(v.items())),
+        "",
+    ]
+    return Page("\n".join(lines), charts)
+
+
+def render_bundle(folder: str | Path) -> Page:
+    """Write ``page.md``, ``charts/*.vl.json`` and ``charts/*.svg`` into a bundle folder."""
+    import vl_convert as vlc
+
+    from topoaudit.audit.result import canonical_json
+
+    folder = Path(folder)
+    a = json.loads((folder / "analysis.json").read_text(encoding="utf-8"))
+    graph = json.loads((folder / "graph.json").read_text(encoding="utf-8"))
+    page = build_page(a, graph)
+    charts = folder / "charts"
+    charts.mkdir(exist_ok=True)
+    for name, spec in page.charts.items():
+        (charts / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
+        svg = vlc.vegalite_to_svg(spec)
+        (charts / f"{name}.svg").write_text(svg, encoding="utf-8")
+    (folder / "page.md").write_text(page.markdown, encoding="utf-8")
+    return page

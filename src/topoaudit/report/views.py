@@ -1,0 +1,246 @@
+"""Altair views: one function per view, each from a tidy DataFrame to a chart.
+
+Views never change their input. Titles, axis labels and legends are written for a
+reviewer who has not read the method; every number comes from the analysis.
+"""
+
+from __future__ import annotations
+
+import altair as alt
+import pandas as pd
+
+from topoaudit.report.theme import COLOURS, DIVERGING, use_theme
+
+__all__ = [
+    "calibration_view",
+    "comparison_view",
+    "graph_view",
+    "local_model_view",
+    "region_error_view",
+    "stability_view",
+]
+
+METRIC_LABELS = {
+    "excess": "errors above what the scores promise (per row)",
+    "loss": "observed error rate",
+    "mean_score": "mean score",
+}
+
+
+def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.LayerChart:
+    """The graph as a node-link drawing.
+
+    ``nodes``: node, x, y, rows, region, loss, expected_loss, excess, mean_score, weak
+    (the weak regions a node belongs to, "" if none). ``edges``: x, y, x2, y2.
+    Node size shows rows; colour shows the metric picked in the selector; nodes of weak
+    regions are outlined.
+    """
+    use_theme()
+    metric = alt.param(
+        name="colour_by",
+        value="excess",
+        bind=alt.binding_select(
+            options=list(METRIC_LABELS),
+            labels=list(METRIC_LABELS.values()),
+            name="Colour nodes by ",
+        ),
+    )
+    axis = alt.Axis(title=None, labels=False, ticks=False, domain=False, grid=False)
+    base_x = alt.X("x:Q", axis=axis, scale=alt.Scale(zero=False, nice=False))
+    base_y = alt.Y("y:Q", axis=axis, scale=alt.Scale(zero=False, nice=False))
+    links = (
+        alt.Chart(edges)
+        .mark_rule(color=COLOURS["edge"], strokeWidth=1, opacity=0.7)
+        .encode(x=base_x, y=base_y, x2="x2:Q", y2="y2:Q")
+    )
+    size = alt.Size("rows:Q", title="rows in node", scale=alt.Scale(range=[20, 600]))
+    tooltip = [
+        alt.Tooltip("node:N", title="node"),
+        alt.Tooltip("rows:Q", title="rows"),
+        alt.Tooltip("region:N", title="region"),
+        alt.Tooltip("loss:Q", title="observed error rate", format=".3f"),
+        alt.Tooltip("expected_loss:Q", title="error rate the scores promise", format=".3f"),
+        alt.Tooltip("mean_score:Q", title="mean score", format=".3f"),
+        alt.Tooltip("weak:N", title="weak regions"),
+    ]
+    points = (
+        alt.Chart(nodes)
+        .transform_calculate(value="datum[colour_by]")
+        .mark_circle(opacity=0.95, stroke=COLOURS["ink"], strokeWidth=0.4)
+        .encode(
+            x=base_x,
+            y=base_y,
+            size=size,
+            color=alt.Color(
+                "value:Q",
+                title="selected metric",
+                scale=alt.Scale(range=DIVERGING, domainMid=0),
+            ),
+            tooltip=tooltip,
+        )
+        .add_params(metric)
+    )
+    outline = (
+        alt.Chart(nodes)
+        .transform_filter("datum.weak != ''")
+        .mark_point(
+            shape="circle", filled=False, color=COLOURS["weak"], strokeWidth=2.5, strokeDash=[4, 2]
+        )
+        .encode(
+            x=base_x,
+            y=base_y,
+            size=alt.Size("rows:Q", scale=alt.Scale(range=[60, 900]), legend=None),
+            tooltip=tooltip,
+        )
+    )
+    return alt.layer(links, points, outline).properties(
+        width=640,
+        height=440,
+        title=alt.Title(title, subtitle="dashed magenta rings: nodes in a weak region"),
+    )
+
+
+def _interval_chart(
+    frame: pd.DataFrame,
+    *,
+    category: str,
+    category_title: str,
+    value: str,
+    value_title: str,
+    title: str,
+    reference: float | None,
+    reference_label: str,
+) -> alt.LayerChart:
+    """Points with interval bars per category, and an optional reference line."""
+    use_theme()
+    y = alt.Y(f"{category}:N", title=category_title, sort=None)
+    bars = (
+        alt.Chart(frame)
+        .mark_rule(color=COLOURS["muted"], strokeWidth=2)
+        .encode(y=y, x=alt.X("low:Q", title=value_title), x2="high:Q")
+    )
+    dots = (
+        alt.Chart(frame)
+        .mark_point(filled=True, size=70, color=COLOURS["ink"])
+        .encode(
+            y=y,
+            x=alt.X(f"{value}:Q"),
+            tooltip=[
+                alt.Tooltip(f"{category}:N", title=category_title),
+                alt.Tooltip(f"{value}:Q", title=value_title, format=".3f"),
+                alt.Tooltip("low:Q", title="interval low", format=".3f"),
+                alt.Tooltip("high:Q", title="interval high", format=".3f"),
+            ],
+        )
+    )
+    layers = [bars, dots]
+    if reference is not None:
+        ref = pd.DataFrame({"ref": [reference], "label": [reference_label]})
+        layers.append(
+            alt.Chart(ref)
+            .mark_rule(color=COLOURS["accent"], strokeDash=[6, 3], strokeWidth=2)
+            .encode(x="ref:Q", tooltip=[alt.Tooltip("label:N", title="line")])
+        )
+    height = max(80, 22 * len(frame))
+    return alt.layer(*layers).properties(width=560, height=height, title=title)
+
+
+def region_error_view(
+    regions: pd.DataFrame, *, overall: float, metric_title: str
+) -> alt.LayerChart:
+    """Per-region error (``region``, ``value``, ``low``, ``high``) with 95% intervals and
+    the overall value as a dashed line."""
+    return _interval_chart(
+        regions,
+        category="region",
+        category_title="region",
+        value="value",
+        value_title=f"{metric_title} (95% interval)",
+        title=f"{metric_title} by region, against the whole data set (dashed)",
+        reference=overall,
+        reference_label=f"whole data set: {overall:.3f}",
+    )
+
+
+def comparison_view(changes: pd.DataFrame, *, baseline: str, candidate: str) -> alt.LayerChart:
+    """Change in error rate per region (``region``, ``value``, ``low``, ``high``)."""
+    return _interval_chart(
+        changes,
+        category="region",
+        category_title="region",
+        value="value",
+        value_title=f"change in error rate, {candidate} minus {baseline} (95% interval)",
+        title=f"Release {candidate} against {baseline}: right of the line is worse",
+        reference=0.0,
+        reference_label="no change",
+    )
+
+
+def local_model_view(tests: pd.DataFrame) -> alt.LayerChart:
+    """Held-out loss of a local model minus the release's, per weak region
+    (``region``, ``value``, ``low``, ``high``)."""
+    return _interval_chart(
+        tests,
+        category="region",
+        category_title="weak region",
+        value="value",
+        value_title="local model loss minus release loss (95% interval over folds)",
+        title="Would a local model do better? Left of the line: yes",
+        reference=0.0,
+        reference_label="no difference",
+    )
+
+
+def calibration_view(bins: pd.DataFrame) -> alt.LayerChart:
+    """Observed rate against mean score per score bin, one line per region
+    (``region``, ``mean_score``, ``observed_rate``, ``rows``)."""
+    use_theme()
+    diagonal = pd.DataFrame({"p": [0.0, 1.0]})
+    line = (
+        alt.Chart(diagonal)
+        .mark_line(color=COLOURS["muted"], strokeDash=[4, 4])
+        .encode(x="p:Q", y="p:Q")
+    )
+    curves = (
+        alt.Chart(bins)
+        .mark_line(point=True)
+        .encode(
+            x=alt.X("mean_score:Q", title="mean score in bin", scale=alt.Scale(domain=[0, 1])),
+            y=alt.Y(
+                "observed_rate:Q", title="observed positive rate", scale=alt.Scale(domain=[0, 1])
+            ),
+            color=alt.Color("region:N", title="region", scale=alt.Scale(scheme="tableau10")),
+            tooltip=[
+                alt.Tooltip("region:N"),
+                alt.Tooltip("rows:Q", title="rows in bin"),
+                alt.Tooltip("mean_score:Q", format=".3f"),
+                alt.Tooltip("observed_rate:Q", format=".3f"),
+            ],
+        )
+    )
+    return alt.layer(line, curves).properties(
+        width=420, height=420, title="Calibration by region (dashed: perfectly calibrated)"
+    )
+
+
+def stability_view(runs: pd.DataFrame) -> alt.Chart:
+    """Whether each weak region was found again in each rerun
+    (``run``, ``region``, ``found`` as "found again" / "not found")."""
+    use_theme()
+    return (
+        alt.Chart(runs)
+        .mark_rect(stroke="#ffffff", strokeWidth=2)
+        .encode(
+            x=alt.X("region:N", title="weak region"),
+            y=alt.Y("run:N", title="rerun (cover settings or subsample)", sort=None),
+            color=alt.Color(
+                "found:N",
+                title="in this rerun",
+                scale=alt.Scale(
+                    domain=["found again", "not found"], range=[COLOURS["good"], "#e9e4da"]
+                ),
+            ),
+            tooltip=["run:N", "region:N", "found:N"],
+        )
+        .properties(title="Do the weak regions survive other settings and samples?")
+    )
