@@ -1,0 +1,35 @@
+/* Turns each <figure class="ta-chart"> into an interactive chart.
+   The Vega-Lite spec is inlined in the page (a <script type="application/json">), so
+   pages work from a server and from disk alike; the static SVG stays as the fallback
+   when scripts are off or a chart cannot be drawn. */
+(function () {
+  "use strict";
+  function renderAll() {
+    var figures = document.querySelectorAll("figure.ta-chart");
+    figures.forEach(function (figure) {
+      if (figure.getAttribute("data-rendered")) { return; }
+      var source = figure.querySelector("script.ta-spec");
+      if (!source || typeof window.vegaEmbed !== "function") { return; }
+      var spec = JSON.parse(source.textContent);
+      var holder = document.createElement("div");
+      holder.className = "ta-view";
+      figure.insertBefore(holder, figure.firstChild);
+      window.vegaEmbed(holder, spec, { actions: false, renderer: "svg" })
+        .then(function () {
+          var fallback = figure.querySelector("img");
+          if (fallback) { fallback.style.display = "none"; }
+          figure.setAttribute("data-rendered", "yes");
+        })
+        .catch(function (error) {
+          holder.remove();
+          figure.setAttribute("data-rendered", "failed");
+          console.error("chart " + figure.getAttribute("data-chart") + ": " + error);
+        });
+    });
+  }
+  if (document.readyState === "loading") {
+    document.addEventListener("DOMContentLoaded", renderAll);
+  } else {
+    renderAll();
+  }
+})();
