@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import shutil
 import sys
+import tempfile
+import time
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -22,80 +25,120 @@ def _check(args: argparse.Namespace) -> int:
     return 0 if all(r.passed for r in results) else 1
 
 
-def _demo(args: argparse.Namespace) -> int:
-    import numpy as np
-    from sklearn.preprocessing import StandardScaler
-
-    from topoaudit.demo import FEATURES, make_meters
-    from topoaudit.mapper.graph import MapperBuilder
-    from topoaudit.mapper.topology import invariants
-
-    out = Path(args.out)
-    print(f"generating {args.rows} invented water-meter readings (seed {args.seed}) ...")
-    frame = make_meters(args.rows, random_state=args.seed)
-    X = StandardScaler().fit_transform(frame[list(FEATURES)].to_numpy())
-    print("building the Mapper graph (eccentricity filter, 12 intervals, 30% overlap) ...")
-    builder = MapperBuilder("eccentricity", n_intervals=12, overlap=0.3, random_state=args.seed)
-    graph = builder.fit(X).graph_
-    inv = invariants(graph)
-    out.mkdir(parents=True, exist_ok=True)
-    path = graph.write_node_link(out / "graph.json")
-    covered = int(np.count_nonzero(graph.covered_rows()))
-    print()
-    print(f"rows            {graph.n_rows} ({covered} in at least one node)")
-    print(f"cover elements  {builder.n_elements_}")
-    print(f"nodes           {inv.n_nodes}")
-    print(f"edges           {inv.n_edges}")
-    print(f"components      {inv.n_components}")
-    print(f"cycle rank      {inv.cycle_rank}")
-    print(f"leaves          {inv.n_leaves}")
-    print(f"branch points   {inv.n_branch_points}")
-    print(f"build time      {builder.timings_['total']:.2f} s")
-    print()
-    print(f"node-link JSON written to {path}")
-    return 0
-
-
-def _audit(args: argparse.Namespace) -> int:
-    import shutil
-    import tempfile
-    import time
-
-    from topoaudit.audit.run import run_audit
-    from topoaudit.config import load_config
-
-    out = Path(args.out)
-    if out.exists() and any(out.iterdir()):
-        msg = f"{out}: the output folder exists and is not empty; choose a new folder."
-        raise TopoauditError(msg)
-    config = load_config(args.config)
+def _progress(quiet: bool):
     start = time.perf_counter()
 
     def say(message: str) -> None:
-        if not args.quiet:
-            print(f"[{time.perf_counter() - start:6.1f} s] {message}", file=sys.stderr)
+        if not quiet:
+            print(f"[{time.perf_counter() - start:6.1f} s] {message}", file=sys.stderr, flush=True)
 
-    command = " ".join(
-        ["topoaudit", "audit", str(args.config), "--out", str(args.out)]
-        + (["--release", args.release] if args.release else [])
-    )
-    audit = run_audit(config, release=args.release, progress=say, command=command)
+    return say
+
+
+def _write_bundle(audit, out: Path) -> None:
+    """Write the bundle and its page into a temporary folder, then move it to ``out``."""
+    from topoaudit.report.page import render_bundle
+
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
     try:
         audit.write(tmp)
+        render_bundle(tmp)
         if out.exists():
             out.rmdir()
         tmp.rename(out)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    r = audit.result
-    print(
-        f"{r.model} {r.release}: {r.provenance['rows']} rows, "
-        f"{len(r.weak_regions)} weak region{'s' if len(r.weak_regions) != 1 else ''} confirmed; "
-        f"bundle written to {out}"
+
+
+def _summary(result) -> str:
+    o = result.overall
+    key = "error_rate" if result.task == "binary" else "mae"
+    n = len(result.weak_regions)
+    return (
+        f"{result.model} {result.release}: {result.provenance['rows']:,} rows, "
+        f"{key.replace('_', ' ')} {o[key]['value']:.3f}, "
+        f"{n} weak region{'s' if n != 1 else ''} confirmed"
     )
+
+
+def _audit(args: argparse.Namespace) -> int:
+    from topoaudit.audit.run import run_audit
+    from topoaudit.config import load_config
+
+    out = Path(args.out)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        msg = f"{out}: the output folder exists and is not empty; choose a new folder."
+        raise TopoauditError(msg)
+    config = load_config(args.config)
+    command = " ".join(
+        ["topoaudit", "audit", str(args.config), "--out", str(args.out)]
+        + (["--release", args.release] if args.release else [])
+    )
+    audit = run_audit(config, release=args.release, progress=_progress(args.quiet), command=command)
+    _write_bundle(audit, out)
+    print(f"{_summary(audit.result)}; bundle written to {out}")
+    return 0
+
+
+def _publish(args: argparse.Namespace) -> int:
+    from topoaudit.report.site import publish
+
+    dest = publish(args.bundle, args.archive, replace=args.replace)
+    print(f"published {args.bundle} as {dest}")
+    return 0
+
+
+def _site_build(args: argparse.Namespace) -> int:
+    from topoaudit.report.site import build_site
+
+    out = build_site(args.archive, args.out, site_name=args.name)
+    print(f"site built: {out / 'index.html'}")
+    return 0
+
+
+def _diff(args: argparse.Namespace) -> int:
+    from topoaudit.audit.diff import bundle_diff
+    from topoaudit.report.diff import diff_markdown
+
+    sys.stdout.write(diff_markdown(bundle_diff(args.before, args.after)))
+    return 0
+
+
+def _demo(args: argparse.Namespace) -> int:
+    from topoaudit.audit.run import run_audit
+    from topoaudit.config import load_config
+    from topoaudit.demo import write_demo_project
+    from topoaudit.report.site import build_site, publish
+
+    out = Path(args.out)
+    say = _progress(args.quiet)
+    say(f"writing {args.rows:,} invented water-meter rows and the audit config")
+    config_path = write_demo_project(out / "project", args.rows, seed=args.seed)
+    config = load_config(config_path)
+    archive = out / "archive"
+    summaries = []
+    for release in config.releases:
+        say(f"auditing release {release.name}")
+        audit = run_audit(
+            config,
+            release=release.name,
+            progress=say,
+            command=f"topoaudit audit {config_path} --release {release.name}",
+        )
+        bundle = out / "bundles" / release.name
+        if bundle.exists():
+            shutil.rmtree(bundle)
+        _write_bundle(audit, bundle)
+        publish(bundle, archive, replace=True)
+        summaries.append(_summary(audit.result))
+    say("building the site")
+    site = build_site(archive, out / "site", site_name="Water meter failure model audits")
+    print()
+    for line in summaries:
+        print(line)
+    print(f"home page: {(site / 'index.html').resolve()}")
     return 0
 
 
@@ -123,12 +166,34 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--quiet", action="store_true", help="no progress messages")
     p.set_defaults(run=_audit)
 
-    p = sub.add_parser("demo", help="build the graph of the invented water-meter data set")
+    p = sub.add_parser("publish", help="add a bundle to the archive as <model>/<release>")
+    p.add_argument("bundle", help="the bundle folder written by topoaudit audit")
+    p.add_argument("--archive", required=True, help="the archive folder")
     p.add_argument(
-        "--out", default="build/demo", help="folder for the outputs (default: %(default)s)"
+        "--replace",
+        action="store_true",
+        help="replace a published release (the old bundle is kept in the history)",
     )
-    p.add_argument("--rows", type=int, default=6000, help="rows to generate (default: %(default)s)")
-    p.add_argument("--seed", type=int, default=7, help="random seed (default: %(default)s)")
+    p.set_defaults(run=_publish)
+
+    p = sub.add_parser("site", help="the static site of an archive")
+    site_sub = p.add_subparsers(dest="site_command", required=True, metavar="ACTION")
+    q = site_sub.add_parser("build", help="build the site (mkdocs) from the archive")
+    q.add_argument("--archive", required=True, help="the archive folder")
+    q.add_argument("--out", required=True, help="the folder for the built site")
+    q.add_argument("--name", default="Model audits", help="the site's title")
+    q.set_defaults(run=_site_build)
+
+    p = sub.add_parser("diff", help="Markdown summary of what changed between two bundles")
+    p.add_argument("before", help="the earlier bundle")
+    p.add_argument("after", help="the later bundle")
+    p.set_defaults(run=_diff)
+
+    p = sub.add_parser("demo", help="the invented water-meter demo: audit, publish, build")
+    p.add_argument("--out", default="build/demo", help="folder for everything (%(default)s)")
+    p.add_argument("--rows", type=int, default=8000, help="rows to generate (%(default)s)")
+    p.add_argument("--seed", type=int, default=7, help="random seed (%(default)s)")
+    p.add_argument("--quiet", action="store_true", help="no progress messages")
     p.set_defaults(run=_demo)
     return parser
 
