@@ -85,6 +85,7 @@ class AnalysisResult:
     candidates: list[dict[str, Any]]
     stability: dict[str, Any]
     comparison: dict[str, Any] | None = None
+    summary: dict[str, Any] = field(default_factory=dict)
     schema: int = SCHEMA
     extra: dict[str, Any] = field(default_factory=dict)
 

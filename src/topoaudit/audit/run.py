@@ -197,11 +197,19 @@ def run_audit(
                 "id": f"W{i}",
                 **_finding_dict(f),
                 "share_of_rows": f.rows.size / ds.n_rows,
+                "error_interval_points": None,
                 "metrics": _metrics(ds, score, rel.threshold, f.rows, 0, seed),
                 "description": desc.as_dict(),
                 "local_model": local.as_dict(),
             }
         )
+
+    for w in weak_out:
+        key = "error_rate" if ds.task == "binary" else None
+        if key and w["metrics"][key]["low"] is not None:
+            w["error_interval_points"] = 100 * (
+                w["metrics"][key]["high"] - w["metrics"][key]["low"]
+            )
 
     runs = []
     if weak and (a.bootstrap_resamples or len(a.stability_intervals) * len(a.stability_overlaps)):
@@ -377,5 +385,13 @@ def run_audit(
             ],
         },
         comparison=comparison,
+        summary={
+            "candidates": len(findings),
+            "candidates_tested": sum(f.tested for f in findings),
+            "candidates_untested": sum(not f.tested for f in findings),
+            "weak_regions": len(weak_out),
+            "regions": len(regions),
+            "confidence": 0.95,
+        },
     )
     return Audit(result=result, graph=graph_doc, members=members)

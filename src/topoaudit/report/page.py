@@ -110,24 +110,21 @@ def _cautions(a: dict[str, Any]) -> list[str]:
     min_rows = a["config"]["audit"]["min_rows"]
     for w in a["weak_regions"]:
         conf = w["confirmation"]
-        m = w["metrics"]
-        key = "error_rate" if a["task"] == "binary" else None
-        if key and m[key]["low"] is not None and m[key]["high"] is not None:
-            width = (m[key]["high"] - m[key]["low"]) * 100
-            if conf["rows"] < 4 * min_rows or width > 15:
-                out.append(
-                    f"Weak region {w['id']} has {count(conf['rows'])} rows in the confirmation "
-                    f"half; its error-rate interval spans {width:.0f} points."
-                )
+        width = w.get("error_interval_points")
+        if width is not None and (conf["rows"] < 4 * min_rows or width > 15):
+            out.append(
+                f"Weak region {w['id']} has {count(conf['rows'])} rows in the confirmation "
+                f"half; its error-rate interval spans {width:.0f} points."
+            )
         if w.get("stability") is not None and w["stability"] < 0.5:
             out.append(
                 f"Weak region {w['id']} was found again in only {w['stability'] * 100:.0f}% of "
                 "reruns with other settings or samples: treat it as a lead, not a finding."
             )
-    untested = [c for c in a["candidates"] if not c["tested"]]
+    untested = a["summary"]["candidates_untested"]
     if untested:
         out.append(
-            f"{len(untested)} candidate region(s) had fewer than {min_rows} confirmation rows "
+            f"{untested} candidate region(s) had fewer than {min_rows} confirmation rows "
             "and were not tested; they are neither confirmed nor cleared."
         )
     for r in a["regions"]:
@@ -151,9 +148,9 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     o = a["overall"]
     lines += [f"# {model}, release {release}", ""]
     lines += [
-        f"Audit of {prov['rows']:,} validation rows, {a['created']}. "
-        f"{len(a['weak_regions'])} weak region(s) confirmed out of "
-        f"{sum(c['tested'] for c in a['candidates'])} candidate(s) tested.",
+        f"Audit of {count(prov['rows'])} validation rows, {a['created']}. "
+        f"{a['summary']['weak_regions']} weak region(s) confirmed out of "
+        f"{a['summary']['candidates_tested']} candidate(s) tested.",
         "",
         "## At a glance",
         "",
@@ -191,7 +188,7 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             else ""
         )
         lines.append(f"| {name} | {rate(est['value'])}{interval} |")
-    lines.append(f"| weak regions confirmed | {len(a['weak_regions'])} |")
+    lines.append(f"| weak regions confirmed | {a['summary']['weak_regions']} |")
     lines.append("")
 
     lines += ["## Where it falls short", ""]
@@ -314,7 +311,8 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     lines += [
         "## Regions",
         "",
-        f"The graph is partitioned into {len(a['regions'])} regions (Louvain communities); "
+        f"The graph is partitioned into {a['summary']['regions']} regions (Louvain "
+        "communities); "
         "every row has one home region and the table adds up to the whole data set.",
         "",
         _chart_block("regions", charts["regions"], f"{label} by region"),

@@ -156,7 +156,7 @@ def _history_page(model: str, rels: list[dict[str, Any]]) -> str:
         lines.append(
             f"| [{escape(r['release'])}]({r['release']}/index.md) | {escape(a['created'])} | "
             f"{count(a['provenance']['rows'])} | {rate(err)} | {rate(auc)} | "
-            f"{len(a['weak_regions'])} | {compare} |"
+            f"{a['summary']['weak_regions']} | {compare} |"
         )
     return "\n".join(lines) + "\n"
 
@@ -209,7 +209,7 @@ def build_site(archive: str | Path, out: str | Path, *, site_name: str = "Model 
             listing.append(
                 f"| [{escape(model)}]({model}/index.md) | {len(rels)} | "
                 f"[{escape(latest['release'])}]({model}/{latest['release']}/index.md) | "
-                f"{len(latest['weak_regions'])} |"
+                f"{latest['summary']['weak_regions']} |"
             )
         table = (
             "| model | releases | latest release | weak regions in the latest |\n"
