@@ -34,6 +34,7 @@ check: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
 	$(BIN)/python -m tests.benchmarks.audit
+	$(BIN)/python -m tests.benchmarks.site
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests reference_checks

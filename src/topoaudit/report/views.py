@@ -53,7 +53,7 @@ def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.L
         .mark_rule(color=COLOURS["edge"], strokeWidth=1, opacity=0.7)
         .encode(x=base_x, y=base_y, x2="x2:Q", y2="y2:Q")
     )
-    size = alt.Size("rows:Q", title="rows in node", scale=alt.Scale(range=[20, 600]))
+    size = alt.Size("rows:Q", title="rows in node", scale=alt.Scale(range=[90, 1400]))
     tooltip = [
         alt.Tooltip("node:N", title="node"),
         alt.Tooltip("rows:Q", title="rows"),
@@ -89,7 +89,7 @@ def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.L
         .encode(
             x=base_x,
             y=base_y,
-            size=alt.Size("rows:Q", scale=alt.Scale(range=[60, 900]), legend=None),
+            size=alt.Size("rows:Q", scale=alt.Scale(range=[260, 2200]), legend=None),
             tooltip=tooltip,
         )
     )
