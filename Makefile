@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: setup test demo check bench lint format clean
+.PHONY: setup test demo check bench baselines lint format clean
 
 setup: $(STAMP)
 
@@ -35,6 +35,11 @@ bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
 	$(BIN)/python -m tests.benchmarks.audit
 	$(BIN)/python -m tests.benchmarks.site
+
+# Rewrites the visual suite's spec snapshots, chart images and page screenshots; review
+# the changed files under tests/visual/baselines before committing them.
+baselines: $(STAMP)
+	TOPOAUDIT_UPDATE_BASELINES=1 $(BIN)/python -m pytest tests/visual -q -k "matches"
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests reference_checks
