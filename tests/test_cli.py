@@ -20,11 +20,19 @@ def test_check_unknown_case_is_a_clear_error(capsys):
     assert err.startswith("topoaudit: error: Unknown reference case 'circel'")
 
 
-def test_demo_prints_a_summary_and_writes_node_link_json(tmp_path, capsys):
-    assert main(["demo", "--out", str(tmp_path), "--rows", "1500"]) == 0
-    out = capsys.readouterr().out
-    assert "nodes" in out and "cycle rank" in out
-    assert f"node-link JSON written to {tmp_path / 'graph.json'}" in out
-    doc = json.loads((tmp_path / "graph.json").read_text())
-    assert doc["n_rows"] == 1500
-    assert doc["nodes"] and "members" not in doc["nodes"][0]
+def test_demo_audits_two_releases_publishes_them_and_builds_the_site(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path), "--rows", "1500", "--quiet"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[-3].startswith("meter-failure 2026.1: 1,500 rows, error rate ")
+    assert out[-2].startswith("meter-failure 2026.2: 1,500 rows, error rate ")
+    home = tmp_path / "site" / "index.html"
+    assert out[-1] == f"home page: {home.resolve()}"
+    assert (
+        tmp_path / "site" / "meter-failure" / "compare" / "2026.1-to-2026.2" / "index.html"
+    ).exists()
+    assert (
+        json.loads(
+            (tmp_path / "archive" / "meter-failure" / "2026.2" / "analysis.json").read_text()
+        )["release"]
+        == "2026.2"
+    )

@@ -116,11 +116,13 @@ def test_cli_audit_writes_the_bundle_and_refuses_a_non_empty_folder(project, tmp
     folder, _ = project
     out = tmp_path / "bundle"
     assert main(["audit", str(folder / "audit.toml"), "--out", str(out), "--quiet"]) == 0
-    assert "sim-model 1.1: 4000 rows" in capsys.readouterr().out
+    assert "sim-model 1.1: 4,000 rows" in capsys.readouterr().out
     assert sorted(p.name for p in out.iterdir()) == [
         "analysis.json",
+        "charts",
         "graph.json",
         "members.parquet",
+        "page.md",
     ]
     assert main(["audit", str(folder / "audit.toml"), "--out", str(out), "--quiet"]) == 2
     assert "the output folder exists and is not empty" in capsys.readouterr().err

@@ -10,12 +10,16 @@ The neighbour routines (:func:`nearest_index`, :func:`kth_distance`) use blocks 
 reduced, and compute ``||b||² - 2 a·b`` with a single matrix product of ``[a, 1]`` and
 ``[-2 b, ||b||²]``: the squared distance less ``||a||²``, which is constant along a row and
 so changes neither the nearest row nor the order of a row's distances. ``||a||²`` is added
-back only to the distances returned.
+back only to the distances returned. These products are thin (``d + 1`` columns) and
+bound by memory, not arithmetic, so they run on one BLAS thread: several threads gain
+nothing on them and, when the cores are busy, lose much time waiting for each other.
 """
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Iterator
+from typing import Any
 
 import numpy as np
 
@@ -26,6 +30,19 @@ BLOCK_BYTES = 2**20
 """Target size of one block of distances in the neighbour routines (cache-sized)."""
 
 _MIN_BLOCK_ROWS = 8
+_controller: Any = None
+
+
+def _one_blas_thread() -> contextlib.AbstractContextManager[Any]:
+    """A context in which numpy's BLAS uses one thread (a no-op without threadpoolctl)."""
+    global _controller
+    if _controller is None:
+        try:
+            from threadpoolctl import ThreadpoolController
+        except ImportError:  # pragma: no cover - installed with scikit-learn
+            return contextlib.nullcontext()
+        _controller = ThreadpoolController()
+    return _controller.limit(limits=1, user_api="blas")
 
 
 def _block_rows(n_ref: int, max_bytes: int) -> int:
@@ -113,8 +130,9 @@ def nearest_index(A: np.ndarray, B: np.ndarray, *, max_bytes: int = MAX_BYTES) -
     [0, 1, 2]
     """
     out = np.empty(A.shape[0], dtype=np.intp)
-    for start, stop, _, v in _iter_shifted(A, B, max_bytes):
-        np.argmin(v, axis=1, out=out[start:stop])
+    with _one_blas_thread():
+        for start, stop, _, v in _iter_shifted(A, B, max_bytes):
+            np.argmin(v, axis=1, out=out[start:stop])
     return out
 
 
@@ -152,9 +170,10 @@ def kth_distance(
     kk = k + 1 if self_included else k
     kk = min(kk, B.shape[0])
     out = np.empty(A.shape[0], dtype=np.float64)
-    for start, stop, a, v in _iter_shifted(A, B, max_bytes):
-        v.partition(kk - 1, axis=1)
-        part = v[:, kk - 1] + np.einsum("ij,ij->i", a, a)
-        np.maximum(part, 0.0, out=part)
-        np.sqrt(part, out=out[start:stop])
+    with _one_blas_thread():
+        for start, stop, a, v in _iter_shifted(A, B, max_bytes):
+            v.partition(kk - 1, axis=1)
+            part = v[:, kk - 1] + np.einsum("ij,ij->i", a, a)
+            np.maximum(part, 0.0, out=part)
+            np.sqrt(part, out=out[start:stop])
     return out

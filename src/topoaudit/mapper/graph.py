@@ -36,13 +36,23 @@ class ClusteringError(TopoauditError, RuntimeError):
     """The clusterer failed on one cover element."""
 
 
-def nerve(members: list[np.ndarray] | tuple[np.ndarray, ...], n_rows: int) -> tuple[np.ndarray, np.ndarray]:
+def nerve(
+    members: list[np.ndarray] | tuple[np.ndarray, ...], n_rows: int
+) -> tuple[np.ndarray, np.ndarray]:
     """Edges between nodes that share rows, and how many rows each pair shares.
 
-    Built from the inverted index row -> nodes: memberships are sorted by row, and every
-    pair of nodes holding the same row is emitted once per shared row, then counted. The
-    cost is O(M log M + P) for M memberships and P emitted pairs; node pairs that share no
-    row are never looked at.
+    Built from the sparse incidence matrix ``A`` (nodes x rows, one entry per
+    membership): ``A Aᵀ`` holds, for every pair of nodes, the rows they share. The
+    product walks the inverted index row -> nodes, so its cost is O(M + n_rows + P) for
+    M memberships and P (pair, shared row) incidences; node pairs that share no row are
+    never looked at.
+
+    Parameters
+    ----------
+    members : sequence of ndarray
+        Row positions of each node, each row at most once per node.
+    n_rows : int
+        Rows of the data; every position is below it.
 
     Returns
     -------
@@ -55,29 +65,33 @@ def nerve(members: list[np.ndarray] | tuple[np.ndarray, ...], n_rows: int) -> tu
     >>> e.tolist(), s.tolist()
     ([[0, 1], [0, 2], [1, 2]], [1, 2, 1])
     """
+    from scipy import sparse
+
+    none = (np.zeros((0, 2), dtype=np.int64), np.zeros(0, dtype=np.int64))
     n_nodes = len(members)
     if n_nodes == 0:
-        return np.zeros((0, 2), dtype=np.int64), np.zeros(0, dtype=np.int64)
-    sizes = np.fromiter((m.size for m in members), dtype=np.int64, count=n_nodes)
-    rows = np.concatenate([np.asarray(m, dtype=np.int64) for m in members])
-    nodes = np.repeat(np.arange(n_nodes, dtype=np.int64), sizes)
-    order = np.lexsort((nodes, rows))
-    rows, nodes = rows[order], nodes[order]
-    keys = []
-    offset = 1
-    while offset < rows.size:
-        same = rows[offset:] == rows[:-offset]
-        if not same.any():
-            break
-        a = nodes[:-offset][same]
-        b = nodes[offset:][same]
-        keys.append(a * n_nodes + b)
-        offset += 1
-    if not keys:
-        return np.zeros((0, 2), dtype=np.int64), np.zeros(0, dtype=np.int64)
-    uniq, counts = np.unique(np.concatenate(keys), return_counts=True)
-    edges = np.column_stack([uniq // n_nodes, uniq % n_nodes])
-    return edges, counts.astype(np.int64)
+        return none
+    sizes = np.fromiter((np.size(m) for m in members), dtype=np.int64, count=n_nodes)
+    n_members = int(sizes.sum())
+    if n_members == 0:
+        return none
+    rows = np.concatenate([np.asarray(m, dtype=np.int64).ravel() for m in members])
+    n_cols = max(int(n_rows), int(rows.max()) + 1)
+    small = max(n_members, n_cols, n_nodes) < 2**31 - 1
+    index = np.int32 if small else np.int64
+    indptr = np.zeros(n_nodes + 1, dtype=index)
+    np.cumsum(sizes, out=indptr[1:])
+    incidence = sparse.csr_array(
+        (np.ones(n_members, dtype=np.int64), rows.astype(index, copy=False), indptr),
+        shape=(n_nodes, n_cols),
+    )
+    product = (incidence @ incidence.T.tocsr()).tocsr()
+    product.sort_indices()
+    first = np.repeat(np.arange(n_nodes, dtype=np.int64), np.diff(product.indptr))
+    second = product.indices.astype(np.int64)
+    upper = second > first
+    edges = np.column_stack([first[upper], second[upper]])
+    return edges, product.data[upper].astype(np.int64)
 
 
 @dataclass(frozen=True, eq=False)
@@ -218,7 +232,46 @@ def _cluster_task(X_sub: np.ndarray, clusterer: Clusterer) -> tuple[np.ndarray, 
     if X_sub.shape[0] < clusterer.min_rows:
         return np.zeros(X_sub.shape[0], dtype=np.int64), 0.0
     labels = clusterer.fit_predict(X_sub)
-    return relabel(np.asarray(labels)), float(clusterer.fit_seconds_)
+    return _relabel(np.asarray(labels)), float(clusterer.fit_seconds_)
+
+
+_FEW_LABELS = 64
+
+
+def _relabel(labels: np.ndarray) -> np.ndarray:
+    """:func:`~topoaudit.mapper.clustering.relabel`, without sorting when labels are few.
+
+    With integer labels below ``_FEW_LABELS`` the first row of each label is found by one
+    pass per label instead of a sort of all rows; the result is the same.
+    """
+    if labels.dtype.kind not in "iu" or labels.size == 0:
+        return relabel(labels)
+    lab = labels.astype(np.int64, copy=False)
+    hi = int(lab.max())
+    if not 0 <= hi < _FEW_LABELS:
+        return relabel(labels)
+    keep = lab >= 0
+    present = np.flatnonzero(np.bincount(lab[keep], minlength=hi + 1))
+    firsts = np.fromiter((np.argmax(lab == c) for c in present), np.int64, present.size)
+    new = np.full(hi + 1, -1, dtype=np.int64)
+    new[present[np.argsort(firsts, kind="stable")]] = np.arange(present.size)
+    return np.where(keep, new[np.where(keep, lab, 0)], -1)
+
+
+def _cluster_rows(
+    X: np.ndarray, rows: np.ndarray, clusterer: Clusterer
+) -> tuple[np.ndarray, float]:
+    """Cluster the rows ``rows`` of ``X`` (for executors that share ``X`` between tasks).
+
+    The labels come back in the smallest integer type that holds them, so that less
+    travels back from a worker process; the builder widens them again.
+    """
+    labels, seconds = _cluster_task(np.asarray(np.take(X, rows, axis=0)), clusterer)
+    if labels.size:
+        lo, hi = int(labels.min()), int(labels.max())
+        narrow = np.promote_types(np.min_scalar_type(lo), np.min_scalar_type(hi))
+        labels = labels.astype(narrow, copy=False)
+    return labels, seconds
 
 
 _CLUSTERER_SPEC = Kind(
@@ -246,7 +299,9 @@ class MapperBuilder:
         (the row then lies in no node of that element; :attr:`n_noise_` counts them).
     n_jobs : int, None or executor, default=None
         ``None``/1: serial; ``n > 1``: ``n`` local processes; or an executor object.
-        Parallel runs give the same graph as serial.
+        Parallel runs give the same graph as serial. Local worker processes are kept for
+        the next build (:meth:`~topoaudit.mapper.executor.ProcessExecutor.shutdown` stops
+        them), so only the first parallel build pays for starting them.
 
     Attributes
     ----------
@@ -326,9 +381,12 @@ class MapperBuilder:
         check_params("MapperBuilder", self._parameter_constraints, vars(self))
         t0 = time.perf_counter()
         clusterer = make_clusterer(self.clusterer, **(self.clusterer_params or {}))
-        if isinstance(clusterer, Clusterer) and hasattr(clusterer, "random_state") and (
-            self.clusterer_params is None or "random_state" not in self.clusterer_params
-        ) and isinstance(self.clusterer, str):
+        if (
+            isinstance(clusterer, Clusterer)
+            and hasattr(clusterer, "random_state")
+            and (self.clusterer_params is None or "random_state" not in self.clusterer_params)
+            and isinstance(self.clusterer, str)
+        ):
             clusterer.random_state = self.random_state
         executor = make_executor(self.n_jobs)
         cover = self._make_cover()
@@ -340,6 +398,10 @@ class MapperBuilder:
             )
             raise DataError(msg)
 
+        if isinstance(executor, ProcessExecutor):
+            # the workers start and import the engine while the filter and cover run here
+            executor.start(preload=(__name__,))
+
         params = dict(self.filter_params or {})
         if isinstance(self.filter, str) and "random_state" in _init_args(self.filter):
             params.setdefault("random_state", self.random_state)
@@ -349,12 +411,15 @@ class MapperBuilder:
         elements = cover.fit_transform(values)
         t2 = time.perf_counter()
 
-        tasks = [(X[e.rows], clusterer) for e in elements]
         weights = [float(e.size) for e in elements]
         try:
-            if isinstance(executor, ProcessExecutor):
-                results = executor.map(_cluster_task, tasks, weights=weights)
+            if hasattr(executor, "map_shared"):
+                # one copy of X for all tasks; each task gathers its own rows
+                index = np.int32 if X.shape[0] < 2**31 else np.int64
+                tasks = [(e.rows.astype(index), clusterer) for e in elements]
+                results = executor.map_shared(_cluster_rows, X, tasks, weights=weights)
             else:
+                tasks = [(X[e.rows], clusterer) for e in elements]
                 results = executor.map(_cluster_task, tasks)
         except TopoauditError:
             raise
@@ -363,12 +428,15 @@ class MapperBuilder:
             raise ClusteringError(msg) from exc
         t3 = time.perf_counter()
 
+        d = values.shape[1]
         members: list[np.ndarray] = []
         node_element: list[tuple[int, ...]] = []
+        filter_parts: list[np.ndarray] = []
         n_noise = 0
         fit_sum = 0.0
         for element, (labels, fit_seconds) in zip(elements, results, strict=True):
             fit_sum += fit_seconds
+            labels = np.asarray(labels)  # any integer type: the order of a stable sort is the same
             if labels.shape != element.rows.shape:
                 msg = (
                     f"The clusterer {clusterer!r} returned {labels.shape[0]} labels for a cover "
@@ -378,22 +446,24 @@ class MapperBuilder:
             k = int(labels.max()) + 1 if labels.size else 0
             if k:
                 order = np.argsort(labels, kind="stable")
-                sorted_labels = labels[order]
-                starts = np.searchsorted(sorted_labels, np.arange(k + 1))
+                starts = np.searchsorted(labels[order], np.arange(k + 1))
                 for c in range(k):
-                    members.append(element.rows[order[starts[c] : starts[c + 1]]])
-                    node_element.append(element.index)
+                    rows = element.rows[order[starts[c] : starts[c + 1]]]
+                    members.append(rows)
+                    filter_parts.append(values[rows].mean(axis=0)[None, :])
+                node_element.extend([element.index] * k)
             noise_rows = element.rows[labels < 0]
             n_noise += int(noise_rows.size)
-            if self.noise == "singleton":
-                for r in noise_rows:
-                    members.append(np.array([r], dtype=np.int64))
-                    node_element.append(element.index)
+            if self.noise == "singleton" and noise_rows.size:
+                members.extend(noise_rows.reshape(-1, 1))
+                filter_parts.append(values[noise_rows])  # the mean of one row is that row
+                node_element.extend([element.index] * int(noise_rows.size))
 
-        d = values.shape[1]
-        node_filter = np.array(
-            [values[m].mean(axis=0) for m in members], dtype=np.float64
-        ).reshape(-1, d)
+        node_filter = (
+            np.concatenate(filter_parts).astype(np.float64, copy=False)
+            if filter_parts
+            else np.zeros((0, d), dtype=np.float64)
+        )
         self.graph_ = MapperGraph.from_members(
             members,
             X.shape[0],
@@ -429,4 +499,3 @@ def _init_args(filter_name: str) -> tuple[str, ...]:
 
     cls = FILTERS.get(filter_name)
     return cls.__init__.__code__.co_varnames if cls else ()
-

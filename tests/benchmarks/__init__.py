@@ -1,0 +1,1 @@
+"""Benchmarks of the Mapper engine: ``python -m tests.benchmarks.run`` (``make bench``)."""
