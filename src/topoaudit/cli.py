@@ -132,7 +132,12 @@ def _demo(args: argparse.Namespace) -> int:
             shutil.rmtree(bundle)
         _write_bundle(audit, bundle)
         publish(bundle, archive, replace=True)
-        summaries.append(_summary(audit.result))
+        inv = audit.result.graph["invariants"]
+        summaries.append(
+            f"{_summary(audit.result)}; graph of {inv['n_nodes']} nodes, {inv['n_edges']} edges, "
+            f"{inv['n_components']} components, cycle rank {inv['cycle_rank']}, "
+            f"{inv['n_leaves']} leaves, {inv['n_branch_points']} branch points"
+        )
     say("building the site")
     site = build_site(archive, out / "site", site_name="Water meter failure model audits")
     print()

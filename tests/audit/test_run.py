@@ -126,3 +126,38 @@ def test_cli_audit_writes_the_bundle_and_refuses_a_non_empty_folder(project, tmp
     ]
     assert main(["audit", str(folder / "audit.toml"), "--out", str(out), "--quiet"]) == 2
     assert "the output folder exists and is not empty" in capsys.readouterr().err
+
+
+def test_a_regression_audit_runs_end_to_end_and_finds_the_residual_pocket(tmp_path):
+    rng = np.random.default_rng(5)
+    n = 4_000
+    X = rng.normal(size=(n, 5))
+    truth = 2.0 * X[:, 0] - X[:, 1]
+    pocket = np.hypot(X[:, 0] - 1.0, X[:, 1] + 0.5) < 0.6
+    y = truth + rng.normal(size=n) * np.where(pocket, 3.5, 1.0)
+    frame = pd.DataFrame(X, columns=[f"f{i}" for i in range(5)])
+    frame.insert(0, "row_id", [f"R{i:05d}" for i in range(n)])
+    frame["y"] = y
+    frame["pred_a"] = truth + 0.1
+    frame["pred_b"] = truth
+    frame.to_csv(tmp_path / "rows.csv", index=False)
+    (tmp_path / "reg.toml").write_text(
+        'model = "reg"\n[data]\npath = "rows.csv"\nid = "row_id"\ntarget = "y"\n'
+        'task = "regression"\n[[release]]\nname = "a"\nscore = "pred_a"\n'
+        '[[release]]\nname = "b"\nscore = "pred_b"\n[audit]\nlocal_model = "ridge"\n'
+        "stability_intervals = [0]\nstability_overlaps = [0.0]\nbootstrap_resamples = 1\n",
+        encoding="utf-8",
+    )
+    audit = run_audit(load_config(tmp_path / "reg.toml"))
+    r = audit.result
+    assert r.task == "regression" and set(r.overall) >= {"mae", "rmse", "bias", "r2"}
+    assert r.weak_regions and r.weak_regions[0]["kind"] == "squared_error"
+    in_w1 = audit.members["weak_regions"].map(lambda regions: "W1" in regions)
+    rows = audit.members.loc[in_w1, "id"].str[1:].astype(int).to_numpy()
+    inter = int(pocket[rows].sum())
+    assert inter / (rows.size + pocket.sum() - inter) >= 0.5
+    assert r.comparison["baseline"] == "a" and len(r.comparison["regions"]) == len(r.regions)
+    from topoaudit.report.page import build_page
+
+    page = build_page(json.loads(r.to_json()), audit.graph).markdown
+    assert "mean absolute error" in page and "## Cautions" in page
