@@ -9,6 +9,7 @@ browsers refuse to fetch JSON from ``file://`` pages).
 
 from __future__ import annotations
 
+import html
 import json
 from dataclasses import dataclass
 from pathlib import Path
@@ -432,6 +433,12 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             for s in a["search"]
         ),
         "- versions: " + ", ".join(f"{escape(k)} {escape(val)}" for k, val in sorted(v.items())),
+        "",
+        "The configuration used (as read, with defaults filled in):",
+        "",
+        '<pre class="ta-config"><code>'
+        + html.escape(json.dumps(a["config"], sort_keys=True, indent=1))
+        + "</code></pre>",
         "",
     ]
     return Page("\n".join(lines), charts)
