@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from topoaudit.audit.search import SearchSettings, search_graphs
-from topoaudit.audit.weak import Losses, find_weak_regions, merge_confirmed
+from topoaudit.audit.weak import Losses, _jaccard, find_weak_regions, merge_confirmed
 
 __all__ = ["StabilityRun", "stability_runs"]
 
@@ -33,12 +33,6 @@ class StabilityRun:
     overlap: float
     confirmed: int
     found: tuple[bool, ...]
-
-
-def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
-    inter = np.intersect1d(a, b, assume_unique=True).size
-    union = a.size + b.size - inter
-    return inter / union if union else 0.0
 
 
 def _sub_losses(losses: Sequence[Losses], rows: np.ndarray) -> list[Losses]:
