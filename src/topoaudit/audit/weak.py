@@ -459,7 +459,8 @@ def merge_confirmed(findings: Sequence[Finding], *, share: float = 0.5) -> list[
     for f in confirmed:
         for i, k in enumerate(kept):
             if _overlap(f.rows, k.rows) >= share:
-                seen = (*k.also_found, f"{f.graph}/{f.kind}")
+                label = f"{f.graph}/{f.kind}"
+                seen = k.also_found if label in k.also_found else (*k.also_found, label)
                 kept[i] = Finding(**{**k.__dict__, "also_found": seen})
                 break
         else:
