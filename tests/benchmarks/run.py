@@ -507,7 +507,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument(
         "--time-budget",
         type=float,
-        default=1080.0,
+        default=900.0,
         help="seconds after which no run waits for idle cores or is rerun",
     )
     parser.add_argument(

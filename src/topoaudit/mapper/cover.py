@@ -150,8 +150,8 @@ class _IntervalCover:
             elem_parts.append(np.ravel_multi_index(idx, shape))
         rows = np.concatenate(row_parts)
         elems = np.concatenate(elem_parts)
-        order = np.lexsort((rows, elems))
-        rows, elems = rows[order], elems[order]
+        key = np.sort(elems * np.int64(n_rows) + rows)  # one sort orders by element, then row
+        elems, rows = key // n_rows, key % n_rows
         cut = np.flatnonzero(np.diff(elems)) + 1
         out = []
         for chunk_rows, e in zip(np.split(rows, cut), elems[np.r_[0, cut]], strict=True):
