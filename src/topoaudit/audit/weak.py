@@ -22,9 +22,10 @@ more often by the same factor everywhere, then shows no excess anywhere.
 **Discovery.** On the discovery half, for a set ``S`` of nodes with observed loss ``O``
 and rescaled expected loss ``E`` out of a total ``N``, the Poisson scan statistic is
 ``LLR(S) = O ln(O / E) + (N - O) ln((N - O) / (N - E))`` when ``O > E`` (else 0)
-(Kulldorff, 1997). From each node with excess, a connected set of nodes is grown greedily,
-adding at each step the neighbouring node that raises the LLR most, and the best set on
-that path is kept (bounded at ``max_share`` of the rows). The strongest non-overlapping
+(Kulldorff, 1997). From each of the 30 nodes with the most excess, a connected set of
+nodes is grown greedily, adding at each step the neighbouring node that raises the LLR
+most, and the best set on that path is kept (bounded at ``max_share`` of the rows and
+50 nodes). The strongest non-overlapping
 sets become candidates.
 
 **Confirmation.** Each candidate is tested once, on the confirmation half only, one-sided:
@@ -217,10 +218,12 @@ def _grow(
     total: float,
     max_rows: int,
     patience: int = 3,
+    max_nodes: int = 50,
 ) -> tuple[float, tuple[int, ...]]:
     """Grow a connected node set from ``seed``, each step adding the neighbouring node
-    that gives the highest LLR; stop after ``patience`` steps without a new best, or at
-    ``max_rows`` rows. Returns the best (LLR, sorted nodes) seen on the way."""
+    that gives the highest LLR; stop after ``patience`` steps without a new best, at
+    ``max_rows`` rows or at ``max_nodes`` nodes (which bounds the cost on large graphs).
+    Returns the best (LLR, sorted nodes) seen on the way."""
     in_set = np.zeros(obs.size, dtype=bool)
     rows = node_rows[seed]
     in_set[rows] = True
@@ -229,7 +232,7 @@ def _grow(
     best = (scan_statistic(o, e, total), (seed,))
     frontier = set(neighbours[seed].tolist())
     stale = 0
-    while frontier and stale < patience:
+    while frontier and stale < patience and len(chosen) < max_nodes:
         step = None
         for v in sorted(frontier):
             new = node_rows[v][~in_set[node_rows[v]]]
@@ -261,7 +264,7 @@ def _grown(
     half: np.ndarray,
     *,
     max_share: float,
-    max_seeds: int = 60,
+    max_seeds: int = 30,
 ) -> list[tuple[float, tuple[int, ...], np.ndarray]]:
     node_rows = [m[half[m]] for m in graph.members]
     nbrs: list[list[int]] = [[] for _ in range(graph.n_nodes)]
