@@ -10,7 +10,7 @@ from reference_checks import CASES
 from reference_checks._case import CaseResult, run_case
 from topoaudit.errors import unknown_name
 
-__all__ = ["format_table", "main", "run_cases"]
+__all__ = ["failures", "format_table", "main", "print_report", "run_cases"]
 
 
 def run_cases(
@@ -65,16 +65,20 @@ def failures(results: Sequence[CaseResult]) -> list[str]:
     return out
 
 
+def print_report(results: Sequence[CaseResult]) -> int:
+    """Print the table and one line per failing setting; the exit status (0: all pass)."""
+    print(format_table(results))
+    for line in failures(results):
+        print("  failed:", line)
+    return 0 if all(r.passed for r in results) else 1
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(prog="python -m reference_checks.runner")
     parser.add_argument("cases", nargs="*", help="case names (default: all)")
     parser.add_argument("--stated-only", action="store_true", help="skip the neighbourhood")
     args = parser.parse_args(argv)
-    results = run_cases(args.cases, neighbourhood=not args.stated_only)
-    print(format_table(results))
-    for line in failures(results):
-        print("  failed:", line)
-    return 0 if all(r.passed for r in results) else 1
+    return print_report(run_cases(args.cases, neighbourhood=not args.stated_only))
 
 
 if __name__ == "__main__":

@@ -17,7 +17,7 @@ import numpy as np
 
 from topoaudit.errors import ParameterError
 
-__all__ = ["Choice", "Interval", "Kind", "check_params", "random_generator"]
+__all__ = ["NONE", "Choice", "Interval", "Kind", "check_params", "random_generator"]
 
 
 @dataclass(frozen=True)
@@ -119,10 +119,3 @@ def random_generator(random_state: int | np.random.Generator | None) -> np.rando
         return np.random.default_rng(None if random_state is None else int(random_state))
     msg = f"random_state must be an int, a numpy Generator or None; got {random_state!r}."
     raise ParameterError(msg)
-
-
-def seed_from(random_state: int | np.random.Generator | None) -> int:
-    """A 32-bit int seed for code that wants an int (scikit-learn estimators)."""
-    if isinstance(random_state, numbers.Integral) and not isinstance(random_state, bool):
-        return int(random_state) % (2**32)
-    return int(random_generator(random_state).integers(0, 2**32 - 1))

@@ -16,13 +16,9 @@ __all__ = ["main"]
 
 
 def _check(args: argparse.Namespace) -> int:
-    from reference_checks.runner import failures, format_table, run_cases
+    from reference_checks.runner import print_report, run_cases
 
-    results = run_cases(args.cases, neighbourhood=not args.stated_only)
-    print(format_table(results))
-    for line in failures(results):
-        print("  failed:", line)
-    return 0 if all(r.passed for r in results) else 1
+    return print_report(run_cases(args.cases, neighbourhood=not args.stated_only))
 
 
 def _progress(quiet: bool):

@@ -13,7 +13,7 @@ at most ``fdr`` and its change is positive (negative).
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 from scipy import stats as _st
@@ -117,8 +117,6 @@ def compare_releases(
         verdict = "no clear change"
         if adj <= fdr:
             verdict = "worse" if c.change > 0 else "better"
-        out.append(RegionChange(**{**asdict(c), "p_adjusted": float(adj), "verdict": verdict}))
-    overall = RegionChange(
-        **{**asdict(overall), "p_adjusted": overall.p_value, "verdict": "overall"}
-    )
+        out.append(replace(c, p_adjusted=float(adj), verdict=verdict))
+    overall = replace(overall, p_adjusted=overall.p_value, verdict="overall")
     return Comparison(baseline, candidate, overall, tuple(out))

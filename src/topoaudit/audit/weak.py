@@ -40,7 +40,7 @@ graph and kind; a candidate is confirmed when its adjusted p-value is at most ``
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -446,7 +446,7 @@ def find_weak_regions(
     adjusted = benjamini_hochberg([out[i].p_value for i in tested_idx])
     for i, adj in zip(tested_idx, adjusted, strict=True):
         f = out[i]
-        out[i] = Finding(**{**f.__dict__, "p_adjusted": float(adj), "confirmed": bool(adj <= fdr)})
+        out[i] = replace(f, p_adjusted=float(adj), confirmed=bool(adj <= fdr))
     return out
 
 
@@ -464,7 +464,7 @@ def merge_confirmed(findings: Sequence[Finding], *, share: float = 0.5) -> list[
             if _overlap(f.rows, k.rows) >= share:
                 label = f"{f.graph}/{f.kind}"
                 seen = k.also_found if label in k.also_found else (*k.also_found, label)
-                kept[i] = Finding(**{**k.__dict__, "also_found": seen})
+                kept[i] = replace(k, also_found=seen)
                 break
         else:
             kept.append(f)

@@ -27,7 +27,7 @@ from sklearn.base import clone
 from sklearn.cluster import DBSCAN, HDBSCAN
 from sklearn.metrics import silhouette_score
 
-from topoaudit._validation import Choice, Interval, Kind, check_params
+from topoaudit._validation import NONE, Choice, Interval, check_params
 from topoaudit.errors import ParameterError, unknown_name
 from topoaudit.mapper._distances import iter_sq_distances, kth_distance, nearest_index
 
@@ -44,8 +44,7 @@ __all__ = [
     "relabel",
 ]
 
-_NONE = Kind(lambda v: v is None, "None")
-_SEED = [Interval(int, 0, None), _NONE]
+_SEED = [Interval(int, 0, None), NONE]
 
 
 def relabel(labels: np.ndarray) -> np.ndarray:
@@ -235,7 +234,7 @@ class AutoDBSCAN(Clusterer):
     """
 
     _parameter_constraints = {
-        "eps": [Interval(float, 0, None, closed="neither"), _NONE],
+        "eps": [Interval(float, 0, None, closed="neither"), NONE],
         "min_samples": [Interval(int, 1, None)],
         "eps_quantile": [Interval(float, 0, 1, closed="right")],
         "max_sample": [Interval(int, 1, None)],
@@ -298,7 +297,7 @@ class SilhouetteKMedoids(Clusterer):
     """
 
     _parameter_constraints = {
-        "n_clusters": [Interval(int, 1, None), _NONE],
+        "n_clusters": [Interval(int, 1, None), NONE],
         "max_clusters": [Interval(int, 2, None)],
         "min_silhouette": [Interval(float, -1, 1)],
         "max_sample": [Interval(int, 3, None)],
@@ -374,7 +373,7 @@ class HDBSCANClusterer(Clusterer):
 
     _parameter_constraints = {
         "min_cluster_size": [Interval(int, 2, None)],
-        "min_samples": [Interval(int, 1, None), _NONE],
+        "min_samples": [Interval(int, 1, None), NONE],
     }
 
     def __init__(self, min_cluster_size: int = 5, *, min_samples: int | None = None) -> None:

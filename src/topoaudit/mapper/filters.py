@@ -17,7 +17,7 @@ import numpy as np
 from sklearn.base import clone
 from sklearn.decomposition import PCA
 
-from topoaudit._validation import Interval, Kind, check_params, random_generator
+from topoaudit._validation import NONE, Interval, Kind, check_params, random_generator
 from topoaudit.errors import FilterError, ParameterError, unknown_name
 from topoaudit.mapper._distances import iter_sq_distances, kth_distance
 from topoaudit.mapper._input import as_matrix
@@ -240,7 +240,7 @@ class GaussianDensity(_Sampled):
     _parameter_constraints = {
         "bandwidth": [
             Interval(float, 0, None, closed="neither"),
-            Kind(lambda v: v is None, "None"),
+            NONE,
         ],
         "max_reference": [Interval(int, 1, None)],
     }

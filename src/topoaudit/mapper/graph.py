@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from topoaudit._validation import Choice, Interval, Kind, check_params
+from topoaudit._validation import NONE, Choice, Interval, Kind, check_params
 from topoaudit.errors import DataError, TopoauditError, unknown_name
 from topoaudit.mapper._input import as_matrix
 from topoaudit.mapper.clustering import Clusterer, make_clusterer, relabel
@@ -331,7 +331,7 @@ class MapperBuilder:
         "clusterer": [_CLUSTERER_SPEC],
         "filter_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
         "clusterer_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
-        "random_state": [Interval(int, 0, None), Kind(lambda v: v is None, "None")],
+        "random_state": [Interval(int, 0, None), NONE],
     }
 
     def __init__(
