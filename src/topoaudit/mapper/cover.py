@@ -25,11 +25,10 @@ from scipy.stats import rankdata
 
 from topoaudit._validation import Interval, Kind, check_params
 from topoaudit.errors import ParameterError
+from topoaudit.limits import MAX_INTERVALS
 
 __all__ = ["MAX_INTERVALS", "BalancedCover", "CoverElement", "UniformCover"]
 
-MAX_INTERVALS = 1000
-"""The most intervals per filter dimension (a bound that keeps a typo from exhausting memory)."""
 
 
 @dataclass(frozen=True)
