@@ -33,6 +33,7 @@ def _progress(quiet: bool):
 
 def _write_bundle(audit, out: Path) -> None:
     """Write the bundle and its page into a temporary folder, then move it to ``out``."""
+    from topoaudit.report.archive import write_checksums
     from topoaudit.report.page import render_bundle
 
     out.parent.mkdir(parents=True, exist_ok=True)
@@ -40,6 +41,7 @@ def _write_bundle(audit, out: Path) -> None:
     try:
         audit.write(tmp)
         render_bundle(tmp)
+        write_checksums(tmp)
         if out.exists():
             out.rmdir()
         tmp.rename(out)
@@ -92,6 +94,14 @@ def _site_build(args: argparse.Namespace) -> int:
     out = build_site(args.archive, args.out, site_name=args.name)
     print(f"site built: {out / 'index.html'}")
     return 0
+
+
+def _archive_verify(args: argparse.Namespace) -> int:
+    from topoaudit.report.archive import verify_archive
+
+    v = verify_archive(args.archive)
+    sys.stdout.write(v.report())
+    return 0 if v.ok else 1
 
 
 def _diff(args: argparse.Namespace) -> int:
@@ -184,6 +194,16 @@ def _parser() -> argparse.ArgumentParser:
     q.add_argument("--out", required=True, help="the folder for the built site")
     q.add_argument("--name", default="Model audits", help="the site's title")
     q.set_defaults(run=_site_build)
+
+    p = sub.add_parser("archive", help="check the archive of published bundles")
+    archive_sub = p.add_subparsers(dest="archive_command", required=True, metavar="ACTION")
+    q = archive_sub.add_parser(
+        "verify",
+        help="compare every bundle with its checksums; exit 1 if a file changed, went "
+        "missing or was added",
+    )
+    q.add_argument("archive", help="the archive folder")
+    q.set_defaults(run=_archive_verify)
 
     p = sub.add_parser("diff", help="Markdown summary of what changed between two bundles")
     p.add_argument("before", help="the earlier bundle")

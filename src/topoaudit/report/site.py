@@ -1,14 +1,11 @@
-"""The archive of published bundles and the static site built from it.
+"""The static site built from an archive of published bundles (see :mod:`.archive`).
 
-Archive layout::
-
-    <archive>/<model>/<release>/        one published bundle (never changed in place)
-    <archive>/<model>/.history/<release>/<n>/   bundles replaced with --replace
-
-Publishing copies a bundle into a temporary folder of the archive and renames it into
-place, so an interrupted publish leaves the archive as it was. Building the site writes a
-complete mkdocs project into a temporary folder, runs ``mkdocs build`` in strict mode, and
-only then swaps the result into the output folder.
+Building the site checks every current bundle against its checksums, writes a complete
+mkdocs project into a temporary folder beside the output, runs ``mkdocs build`` in strict
+mode, and only then swaps the result into the output folder with one atomic exchange; an
+interrupted build leaves the previous site exactly as it was. The output folder must be
+new, empty, or a site this function built (it holds ``.topoaudit-site``): a folder of
+other files is never replaced.
 """
 
 from __future__ import annotations
@@ -16,7 +13,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import re
 import shutil
 import tempfile
 from importlib import resources
@@ -25,19 +21,25 @@ from typing import Any
 
 from topoaudit.audit.diff import bundle_diff
 from topoaudit.audit.result import build_date, canonical_json
-from topoaudit.config import NAME_PATTERN
-from topoaudit.errors import TopoauditError
+from topoaudit.report.archive import (
+    ArchiveError,
+    check_name,
+    exchange_folders,
+    fsync_path,
+    list_releases,
+    locked,
+    publish,
+    refuse_changed,
+    unlocked,
+)
 from topoaudit.report.diff import diff_markdown
-from topoaudit.report.page import render_bundle
 from topoaudit.report.text import count, escape, rate
 
-__all__ = ["ArchiveError", "build_site", "list_releases", "publish"]
+__all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish"]
+
+SITE_MARKER = ".topoaudit-site"
 
 log = logging.getLogger(__name__)
-
-
-class ArchiveError(TopoauditError, OSError):
-    """The archive refused an operation (a name, an existing release, a broken bundle)."""
 
 
 def _template_dir() -> Path:
@@ -50,90 +52,44 @@ def _template_dir() -> Path:
     return Path(str(packaged))
 
 
-def _check_name(kind: str, name: str) -> str:
-    if not isinstance(name, str) or not re.fullmatch(NAME_PATTERN, name) or ".." in name:
-        msg = (
-            f"The {kind} name {name!r} is not allowed; names must match {NAME_PATTERN} "
-            "(letters, digits, '.', '-', '_', at most 64 characters, no '..')."
-        )
-        raise ArchiveError(msg)
-    return name
-
-
-def _read_analysis(folder: Path) -> dict[str, Any]:
-    path = folder / "analysis.json"
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ArchiveError(f"{folder}: not a bundle (no analysis.json).") from None
-    except (OSError, ValueError) as exc:
-        raise ArchiveError(f"{path}: cannot be read ({exc}).") from exc
-
-
-def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -> Path:
-    """Add ``bundle`` to ``archive`` as ``<model>/<release>/``.
-
-    A published release is never overwritten: without ``replace`` an existing release is
-    refused and nothing changes; with it, the old bundle moves to the model's history.
-    """
-    bundle, archive = Path(bundle), Path(archive)
-    a = _read_analysis(bundle)
-    model = _check_name("model", a.get("model", ""))
-    release = _check_name("release", a.get("release", ""))
-    dest = archive / model / release
-    if dest.exists() and not replace:
-        msg = (
-            f"{dest}: release {release!r} of model {model!r} is already published; pass "
-            "--replace to replace it (the old bundle is kept in the archive's history)."
-        )
-        raise ArchiveError(msg)
-    (archive / model).mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".incoming-{release}-", dir=archive / model))
-    try:
-        staged = tmp / "bundle"
-        shutil.copytree(bundle, staged)
-        if not (staged / "page.md").exists():
-            render_bundle(staged)
-        sequence = 1 + max((r["sequence"] for r in list_releases(archive, model)), default=0)
-        (staged / "published.json").write_text(
-            canonical_json({"sequence": sequence, "published": build_date()}), encoding="utf-8"
-        )
-        if dest.exists():
-            history = archive / model / ".history" / release
-            history.mkdir(parents=True, exist_ok=True)
-            n = 1 + max((int(p.name) for p in history.iterdir() if p.name.isdigit()), default=0)
-            dest.rename(history / str(n))
-        staged.rename(dest)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
-    return dest
-
-
-def list_releases(archive: str | Path, model: str) -> list[dict[str, Any]]:
-    """Published releases of ``model``, newest first, with their analysis and sequence."""
-    folder = Path(archive) / model
+def _models(archive: Path) -> list[str]:
     out = []
-    if not folder.is_dir():
-        return out
-    for child in sorted(folder.iterdir()):
-        if child.name.startswith(".") or not (child / "published.json").exists():
+    for p in sorted(archive.iterdir()):
+        if p.name.startswith(".") or not p.is_dir():
             continue
-        meta = json.loads((child / "published.json").read_text(encoding="utf-8"))
-        out.append(
-            {
-                "release": child.name,
-                "folder": child,
-                "sequence": meta["sequence"],
-                "published": meta["published"],
-                "analysis": _read_analysis(child),
-            }
-        )
-    out.sort(key=lambda r: -r["sequence"])
+        if p.is_symlink():
+            raise ArchiveError(f"{p}: is a symbolic link; archives may not hold links.")
+        out.append(check_name("model", p.name))
     return out
 
 
-def _models(archive: Path) -> list[str]:
-    return sorted(p.name for p in archive.iterdir() if p.is_dir() and not p.name.startswith("."))
+def _check_output(out: Path, archive: Path) -> None:
+    """Refuse an output folder that is not ours to replace."""
+    if out.is_symlink():
+        raise ArchiveError(f"{out}: the site folder is a symbolic link; give the real folder.")
+    o, a = out.resolve(), archive.resolve()
+    if o == a or a in o.parents or o in a.parents:
+        msg = f"{out}: the site folder may not be, hold or lie inside the archive {archive}."
+        raise ArchiveError(msg)
+    if out.exists() and (
+        not out.is_dir() or (any(out.iterdir()) and not (out / SITE_MARKER).is_file())
+    ):
+        msg = (
+            f"{out}: exists and is not a site built by topoaudit (it has no {SITE_MARKER} "
+            "file); choose a new or empty folder, so that nothing else is replaced."
+        )
+        raise ArchiveError(msg)
+
+
+def _clean_leftovers(parent: Path, prefix: str, out: Path) -> None:
+    """Remove build folders of builds that died; put back a site a fallback swap parked."""
+    for work in sorted(parent.glob(prefix + "*")):
+        if not work.is_dir() or work.is_symlink() or not unlocked(work / ".lock"):
+            continue
+        parked = work / "site.swap"
+        if parked.is_dir() and not out.exists():
+            os.rename(parked, out)
+        shutil.rmtree(work, ignore_errors=True)
 
 
 def _history_page(model: str, rels: list[dict[str, Any]]) -> str:
@@ -168,83 +124,98 @@ def _write(path: Path, text: str) -> None:
 
 def build_site(archive: str | Path, out: str | Path, *, site_name: str = "Model audits") -> Path:
     """Build the static site of ``archive`` into ``out`` (replaced only when complete)."""
+    archive, out = Path(archive), Path(out)
+    if archive.is_symlink() or not archive.is_dir():
+        raise ArchiveError(f"{archive}: no such archive folder (or it is a symbolic link).")
+    template = _template_dir()
+    out.parent.mkdir(parents=True, exist_ok=True)
+    prefix = f".{out.name}-build-"
+    _clean_leftovers(out.parent, prefix, out)
+    _check_output(out, archive)
+    work = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
+    try:
+        with locked(work / ".lock"):
+            _build_into(work, archive, out, template, site_name)
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+    return out
+
+
+def _build_into(work: Path, archive: Path, out: Path, template: Path, site_name: str) -> None:
+    """Write the mkdocs project into ``work``, build it, and swap it in as ``out``."""
     import vl_convert as vlc
     from mkdocs.commands.build import build
     from mkdocs.config import load_config
 
-    archive, out = Path(archive), Path(out)
-    if not archive.is_dir():
-        raise ArchiveError(f"{archive}: no such archive folder.")
-    template = _template_dir()
-    out.parent.mkdir(parents=True, exist_ok=True)
-    work = Path(tempfile.mkdtemp(prefix=f".{out.name}-build-", dir=out.parent))
-    try:
-        docs = work / "docs"
-        nav: list[Any] = [{"Home": "index.md"}]
-        listing = []
-        for model in _models(archive):
-            _check_name("model", model)
-            rels = list_releases(archive, model)
-            if not rels:
-                continue
-            log.info("building pages of model %s (%d releases)", model, len(rels))
-            _write(docs / model / "index.md", _history_page(model, rels))
-            section: list[Any] = [{"Release history": f"{model}/index.md"}]
-            for i, r in enumerate(rels):
-                page_dir = docs / model / r["release"]
-                text = (r["folder"] / "page.md").read_text(encoding="utf-8")
-                _write(page_dir / "index.md", text)
-                shutil.copytree(r["folder"] / "charts", page_dir / "charts")
-                section.append({f"Release {r['release']}": f"{model}/{r['release']}/index.md"})
-                if i + 1 < len(rels):
-                    prev = rels[i + 1]
-                    d = bundle_diff(prev["folder"], r["folder"])
-                    name = f"{prev['release']}-to-{r['release']}.md"
-                    _write(docs / model / "compare" / name, diff_markdown(d, heading="#"))
-                    section.append(
-                        {f"{r['release']} against {prev['release']}": f"{model}/compare/{name}"}
-                    )
-            nav.append({model: section})
-            latest = rels[0]["analysis"]
-            listing.append(
-                f"| [{escape(model)}]({model}/index.md) | {len(rels)} | "
-                f"[{escape(latest['release'])}]({model}/{latest['release']}/index.md) | "
-                f"{latest['summary']['weak_regions']} |"
-            )
-        table = (
-            "| model | releases | latest release | weak regions in the latest |\n"
-            "|---|---|---|---|\n" + "\n".join(listing) + "\n"
-            if listing
-            else "No release has been published yet.\n"
+    docs = work / "docs"
+    nav: list[Any] = [{"Home": "index.md"}]
+    listing = []
+    for model in _models(archive):
+        rels = list_releases(archive, model)
+        for r in rels:
+            refuse_changed(r["folder"])
+        if not rels:
+            continue
+        log.info("building pages of model %s (%d releases)", model, len(rels))
+        _write(docs / model / "index.md", _history_page(model, rels))
+        section: list[Any] = [{"Release history": f"{model}/index.md"}]
+        for i, r in enumerate(rels):
+            page_dir = docs / model / r["release"]
+            text = (r["folder"] / "page.md").read_text(encoding="utf-8")
+            _write(page_dir / "index.md", text)
+            shutil.copytree(r["folder"] / "charts", page_dir / "charts")
+            section.append({f"Release {r['release']}": f"{model}/{r['release']}/index.md"})
+            if i + 1 < len(rels):
+                prev = rels[i + 1]
+                d = bundle_diff(prev["folder"], r["folder"])
+                name = f"{prev['release']}-to-{r['release']}.md"
+                _write(docs / model / "compare" / name, diff_markdown(d, heading="#"))
+                section.append(
+                    {f"{r['release']} against {prev['release']}": f"{model}/compare/{name}"}
+                )
+        nav.append({model: section})
+        latest = rels[0]["analysis"]
+        listing.append(
+            f"| [{escape(model)}]({model}/index.md) | {len(rels)} | "
+            f"[{escape(latest['release'])}]({model}/{latest['release']}/index.md) | "
+            f"{latest['summary']['weak_regions']} |"
         )
-        home = (template / "home.md").read_text(encoding="utf-8").replace("{models}", table)
-        _write(docs / "index.md", home)
-        assets = docs / "assets"
-        assets.mkdir(parents=True, exist_ok=True)
-        (assets / "vega-bundle.js").write_text(vlc.javascript_bundle(), encoding="utf-8")
-        for name in ("charts.js", "topoaudit.css"):
-            shutil.copyfile(template / "assets" / name, assets / name)
-        yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
-        yml = yml.replace('"{site_name}"', json.dumps(site_name))
-        yml += "nav:\n" + _nav_yaml(nav, 1)
-        (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
-        log.info("running mkdocs build")
-        try:
-            build(load_config(str(work / "mkdocs.yml")))
-        except Exception as exc:
-            msg = f"mkdocs could not build the site from {archive}: {exc}"
-            raise ArchiveError(msg) from exc
-        built = work / "site"
-        old = None
-        if out.exists():
-            old = out.parent / f".{out.name}-old-{os.getpid()}"
-            out.rename(old)
-        built.rename(out)
-        if old is not None:
-            shutil.rmtree(old, ignore_errors=True)
-    finally:
-        shutil.rmtree(work, ignore_errors=True)
-    return out
+    table = (
+        "| model | releases | latest release | weak regions in the latest |\n"
+        "|---|---|---|---|\n" + "\n".join(listing) + "\n"
+        if listing
+        else "No release has been published yet.\n"
+    )
+    home = (template / "home.md").read_text(encoding="utf-8").replace("{models}", table)
+    _write(docs / "index.md", home)
+    assets = docs / "assets"
+    assets.mkdir(parents=True, exist_ok=True)
+    (assets / "vega-bundle.js").write_text(vlc.javascript_bundle(), encoding="utf-8")
+    for name in ("charts.js", "topoaudit.css"):
+        shutil.copyfile(template / "assets" / name, assets / name)
+    yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
+    yml = yml.replace('"{site_name}"', json.dumps(site_name))
+    yml += "nav:\n" + _nav_yaml(nav, 1)
+    (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
+    log.info("running mkdocs build")
+    try:
+        build(load_config(str(work / "mkdocs.yml")))
+    except Exception as exc:
+        msg = f"mkdocs could not build the site from {archive}: {exc}"
+        raise ArchiveError(msg) from exc
+    built = work / "site"
+    (built / SITE_MARKER).write_text(
+        canonical_json({"built": build_date(), "by": "topoaudit site build"}), encoding="utf-8"
+    )
+    for root, _dirs, names in os.walk(built):
+        for name in names:
+            fsync_path(Path(root) / name)
+        fsync_path(Path(root), directory=True)
+    if out.exists():
+        exchange_folders(built, out)
+    else:
+        os.rename(built, out)
+    fsync_path(out.parent, directory=True)
 
 
 def _nav_yaml(items: list[Any], depth: int) -> str:

@@ -1,0 +1,578 @@
+"""The archive of published bundles: atomic publishing, checksums and verification.
+
+Layout::
+
+    <archive>/.lock                                   held while a publish runs
+    <archive>/<model>/<release>/                      one published bundle, never changed in place
+    <archive>/<model>/.history/<release>/<n>/         bundles replaced with ``replace=True``
+    <archive>/<model>/.incoming-<release>-<random>/   a publish in progress (or interrupted)
+
+Every bundle carries ``checksums.json``: the SHA-256 of each of its files. A publish
+copies the bundle into an ``.incoming-*`` folder of the archive (each file written and
+flushed to disk), verifies the copy, adds ``published.json`` and the checksums, and then
+commits with one rename: a plain ``rename`` for a new release, an atomic exchange of the
+two folders (Linux ``renameat2(RENAME_EXCHANGE)``) for a replaced one, after which the
+old bundle is filed in the history. Killed at any moment, the archive shows either the
+old or the new release, never a mixture; an old bundle caught between the exchange and
+its filing stays complete in its ``.incoming-*`` folder, is reported by
+:func:`verify_archive` as pending, and is filed by the next publish.
+
+Nothing here follows a symbolic link: a bundle or an archive that contains one is
+refused, so no input can make the tool read or write outside the folders it was given.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import ctypes
+import errno
+import hashlib
+import json
+import os
+import re
+import shutil
+import stat
+import sys
+import tempfile
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from topoaudit.audit.result import build_date, canonical_json
+from topoaudit.config import NAME_PATTERN
+from topoaudit.errors import TopoauditError
+
+try:  # pragma: no cover - every supported platform has fcntl
+    import fcntl
+except ImportError:  # pragma: no cover
+    fcntl = None  # type: ignore[assignment]
+
+__all__ = [
+    "CHECKSUMS",
+    "ArchiveError",
+    "Finding",
+    "Verification",
+    "bundle_findings",
+    "check_name",
+    "list_releases",
+    "publish",
+    "verify_archive",
+    "write_checksums",
+]
+
+CHECKSUMS = "checksums.json"
+PUBLISHED = "published.json"
+HISTORY = ".history"
+INCOMING = ".incoming-"
+LOCK = ".lock"
+_INTENT = "intent.json"
+
+
+class ArchiveError(TopoauditError, OSError):
+    """The archive refused an operation (a name, an existing release, a broken bundle)."""
+
+
+def check_name(kind: str, name: object) -> str:
+    """Return ``name`` if it is a safe model or release name, else raise ArchiveError."""
+    if not isinstance(name, str) or not re.fullmatch(NAME_PATTERN, name) or ".." in name:
+        msg = (
+            f"The {kind} name {name!r} is not allowed; names must match {NAME_PATTERN} "
+            "(letters, digits, '.', '-', '_', at most 64 characters, no '..')."
+        )
+        raise ArchiveError(msg)
+    return name
+
+
+# -- files -------------------------------------------------------------------------------
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def _files(folder: Path) -> dict[str, Path]:
+    """Regular files under ``folder`` by POSIX relative path; refuses links and devices."""
+    if folder.is_symlink():
+        raise ArchiveError(
+            f"{folder}: is a symbolic link; bundles and archives may not hold links."
+        )
+    out: dict[str, Path] = {}
+    for root, dirs, names in os.walk(folder):
+        base = Path(root)
+        for name in sorted(dirs + names):
+            path = base / name
+            mode = path.lstat().st_mode
+            if stat.S_ISLNK(mode):
+                msg = (
+                    f"{path}: is a symbolic link; bundles and archives may hold only plain "
+                    "files and folders."
+                )
+                raise ArchiveError(msg)
+            if stat.S_ISREG(mode):
+                out[path.relative_to(folder).as_posix()] = path
+            elif not stat.S_ISDIR(mode):
+                raise ArchiveError(f"{path}: is not a plain file or folder.")
+    return dict(sorted(out.items()))
+
+
+def fsync_path(path: Path, *, directory: bool = False) -> None:
+    flags = os.O_RDONLY | (getattr(os, "O_DIRECTORY", 0) if directory else 0)
+    try:
+        fd = os.open(path, flags)
+    except OSError:  # pragma: no cover - a platform that cannot open folders
+        return
+    try:
+        os.fsync(fd)
+    except OSError:  # pragma: no cover
+        pass
+    finally:
+        os.close(fd)
+
+
+def write_file(path: Path, text: str) -> None:
+    """Write ``text`` to ``path`` through a temporary file, flushed, then renamed."""
+    tmp = path.with_name(f".{path.name}.tmp")
+    with open(tmp, "w", encoding="utf-8") as f:
+        f.write(text)
+        f.flush()
+        os.fsync(f.fileno())
+    os.replace(tmp, path)
+
+
+def _copy_durably(src: str, dst: str) -> str:
+    shutil.copyfile(src, dst)
+    fsync_path(Path(dst))
+    return dst
+
+
+def _copy_tree(src: Path, dst: Path) -> None:
+    """Copy a bundle's plain files (links refused), each flushed to disk."""
+    _files(src)  # refuses links and special files before anything is copied
+    shutil.copytree(src, dst, copy_function=_copy_durably)
+    for root, _dirs, _names in os.walk(dst):
+        fsync_path(Path(root), directory=True)
+
+
+def exchange_folders(a: Path, b: Path) -> None:
+    """Swap two folders atomically (``renameat2`` with RENAME_EXCHANGE where available).
+
+    Elsewhere it falls back to three renames through ``<a>.swap``; :func:`_recover` puts
+    back whatever an interruption of those leaves.
+    """
+    sys.audit("topoaudit.exchange", str(a), str(b))
+    func = getattr(ctypes.CDLL(None, use_errno=True), "renameat2", None)
+    if func is not None:
+        at_fdcwd, rename_exchange = -100, 2
+        if func(at_fdcwd, os.fsencode(a), at_fdcwd, os.fsencode(b), rename_exchange) == 0:
+            return
+        code = ctypes.get_errno()
+        if code not in (errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP):
+            raise OSError(code, os.strerror(code), str(a))
+    swap = a.with_name(a.name + ".swap")  # pragma: no cover - kernels without renameat2
+    os.rename(b, swap)  # pragma: no cover
+    os.rename(a, b)  # pragma: no cover
+    os.rename(swap, a)  # pragma: no cover
+
+
+@contextlib.contextmanager
+def locked(path: Path) -> Iterator[None]:
+    """Hold an exclusive lock on ``path`` (released by the kernel if the process dies)."""
+    if fcntl is None:  # pragma: no cover
+        yield
+        return
+    fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+        yield
+    finally:
+        os.close(fd)
+
+
+def unlocked(path: Path) -> bool:
+    """True if nobody holds the lock file ``path`` (its owner finished or died)."""
+    if fcntl is None or not path.exists():  # pragma: no cover
+        return True
+    fd = os.open(path, os.O_RDWR)
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        return False
+    finally:
+        os.close(fd)
+    return True
+
+
+# -- checksums ---------------------------------------------------------------------------
+
+
+def write_checksums(folder: str | Path) -> Path:
+    """Record the SHA-256 of every file of the bundle ``folder`` in ``checksums.json``."""
+    folder = Path(folder)
+    files = {rel: _sha256(p) for rel, p in _files(folder).items() if rel != CHECKSUMS}
+    path = folder / CHECKSUMS
+    write_file(path, canonical_json({"algorithm": "sha256", "files": files}))
+    return path
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One thing :func:`verify_archive` found: ``kind`` is one of changed, missing, added,
+    unreadable, link, sequence (a problem) or pending, leftover (an interrupted run)."""
+
+    kind: str
+    path: str
+    detail: str = ""
+
+    PROBLEMS = ("changed", "missing", "added", "unreadable", "link", "sequence")
+
+    @property
+    def problem(self) -> bool:
+        return self.kind in self.PROBLEMS
+
+    def __str__(self) -> str:
+        return f"{self.kind:<10} {self.path}" + (f"  ({self.detail})" if self.detail else "")
+
+
+def _read_json(path: Path) -> Any:
+    return json.loads(path.read_text(encoding="utf-8"))
+
+
+def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> list[Finding]:
+    """Compare the files of a bundle with its ``checksums.json``."""
+    folder = Path(folder)
+    base = relative_to or folder
+
+    def rel(p: Path) -> str:
+        return p.relative_to(base).as_posix() if p != base else "."
+
+    try:
+        files = _files(folder)
+    except ArchiveError as exc:
+        return [Finding("link", rel(folder), str(exc))]
+    try:
+        recorded = _read_json(folder / CHECKSUMS)["files"]
+        if not isinstance(recorded, dict):
+            raise TypeError("files is not a table")
+    except FileNotFoundError:
+        return [Finding("missing", rel(folder / CHECKSUMS), "the bundle records no checksums")]
+    except (OSError, ValueError, TypeError, KeyError) as exc:
+        return [Finding("unreadable", rel(folder / CHECKSUMS), str(exc))]
+    found = []
+    for name, digest in sorted(recorded.items()):
+        path = folder / name
+        if name not in files:
+            found.append(Finding("missing", rel(path)))
+        elif _sha256(path) != digest:
+            found.append(Finding("changed", rel(path), "its SHA-256 differs from checksums.json"))
+    for name in files:
+        if name != CHECKSUMS and name not in recorded:
+            found.append(Finding("added", rel(folder / name), "not in checksums.json"))
+    return found
+
+
+def refuse_changed(folder: Path) -> None:
+    problems = bundle_findings(folder)
+    if problems:
+        listed = "; ".join(str(p) for p in problems[:5])
+        more = f" and {len(problems) - 5} more" if len(problems) > 5 else ""
+        msg = (
+            f"{folder}: the bundle does not match its checksums.json ({listed}{more}); it "
+            "changed after it was written. Audit again, or restore the original files."
+        )
+        raise ArchiveError(msg)
+
+
+# -- publishing ---------------------------------------------------------------------------
+
+
+def _read_analysis(folder: Path) -> dict[str, Any]:
+    path = folder / "analysis.json"
+    try:
+        return _read_json(path)
+    except FileNotFoundError:
+        raise ArchiveError(f"{folder}: not a bundle (no analysis.json).") from None
+    except (OSError, ValueError) as exc:
+        raise ArchiveError(f"{path}: cannot be read ({exc}).") from exc
+
+
+def _sequence(bundle: Path) -> list[int]:
+    """The publication number of a bundle, as a list of none or one."""
+    try:
+        return [int(_read_json(bundle / PUBLISHED)["sequence"])]
+    except (OSError, ValueError, KeyError, TypeError):
+        return []
+
+
+def _sequences(model_dir: Path) -> list[int]:
+    return [s for bundle in _bundles(model_dir) for s in _sequence(bundle)]
+
+
+def _bundles(model_dir: Path) -> list[Path]:
+    """Current and historical bundles of a model folder."""
+    if not model_dir.is_dir():
+        return []
+    out = [p for p in sorted(model_dir.iterdir()) if not p.name.startswith(".") and p.is_dir()]
+    history = model_dir / HISTORY
+    if history.is_dir() and not history.is_symlink():
+        for rel in sorted(history.iterdir()):
+            if rel.is_dir() and not rel.is_symlink():
+                out += [n for n in sorted(rel.iterdir()) if n.is_dir() and n.name.isdigit()]
+    return out
+
+
+def _file_in_history(old: Path, model_dir: Path, release: str) -> Path:
+    history = model_dir / HISTORY / release
+    history.mkdir(parents=True, exist_ok=True)
+    n = 1 + max((int(p.name) for p in history.iterdir() if p.name.isdigit()), default=0)
+    target = history / str(n)
+    os.rename(old, target)
+    fsync_path(history, directory=True)
+    return target
+
+
+def _replaced_bundle(tmp: Path) -> Path | None:
+    """The old bundle an interrupted replace left in ``tmp``, if it holds one.
+
+    A replace writes ``intent.json`` (the digest of the new bundle's checksums) before the
+    exchange; afterwards ``tmp/bundle`` is the old bundle, whose digest differs (the
+    fallback exchange parks it in ``tmp/bundle.swap`` instead).
+    """
+    try:
+        intent = _read_json(tmp / _INTENT)
+    except (OSError, ValueError):
+        return None
+    if not isinstance(intent, dict):
+        return None
+    swap, staged = tmp / "bundle.swap", tmp / "bundle"
+    if swap.is_dir():
+        return swap
+    if staged.is_dir() and _checksums_digest(staged) != intent.get("new"):
+        return staged
+    return None
+
+
+def _recover(model_dir: Path) -> None:
+    """Finish or undo publishes of ``model_dir`` that were interrupted (lock held)."""
+    for tmp in sorted(model_dir.glob(INCOMING + "*")):
+        if not unlocked(tmp / LOCK):
+            continue
+        old = _replaced_bundle(tmp)
+        if old is not None:
+            release = check_name("release", _read_json(tmp / _INTENT).get("release"))
+            if not (model_dir / release).exists():
+                os.rename(old, model_dir / release)  # the fallback exchange stopped half-way
+            else:
+                _file_in_history(old, model_dir, release)
+        shutil.rmtree(tmp)
+
+
+def _checksums_digest(folder: Path) -> str | None:
+    try:
+        return _sha256(folder / CHECKSUMS)
+    except OSError:
+        return None
+
+
+def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -> Path:
+    """Add ``bundle`` to ``archive`` as ``<model>/<release>/``.
+
+    A published release is never overwritten: without ``replace`` an existing release is
+    refused and nothing changes; with it, the old bundle moves to the model's history
+    (with its checksums). A bundle whose files no longer match its ``checksums.json``, or
+    that holds a symbolic link, is refused.
+    """
+    from topoaudit.report.page import render_bundle
+
+    bundle, archive = Path(bundle), Path(archive)
+    if not bundle.is_dir():
+        raise ArchiveError(f"{bundle}: no such bundle folder.")
+    a = _read_analysis(bundle)
+    model = check_name("model", a.get("model", ""))
+    release = check_name("release", a.get("release", ""))
+    _files(bundle)
+    if (bundle / CHECKSUMS).exists():
+        refuse_changed(bundle)
+    if archive.is_symlink():
+        raise ArchiveError(f"{archive}: the archive folder is a symbolic link; give the real one.")
+    archive.mkdir(parents=True, exist_ok=True)
+    model_dir = archive / model
+    with locked(archive / LOCK):
+        if model_dir.is_symlink():
+            raise ArchiveError(f"{model_dir}: is a symbolic link; archives may not hold links.")
+        model_dir.mkdir(exist_ok=True)
+        _recover(model_dir)
+        dest = model_dir / release
+        if dest.is_symlink():
+            raise ArchiveError(f"{dest}: is a symbolic link; archives may not hold links.")
+        if dest.exists() and not replace:
+            msg = (
+                f"{dest}: release {release!r} of model {model!r} is already published; pass "
+                "--replace to replace it (the old bundle is kept in the archive's history)."
+            )
+            raise ArchiveError(msg)
+        tmp = Path(tempfile.mkdtemp(prefix=f"{INCOMING}{release}-", dir=model_dir))
+        with locked(tmp / LOCK):
+            staged = tmp / "bundle"
+            _copy_tree(bundle, staged)
+            if (staged / CHECKSUMS).exists():
+                refuse_changed(staged)
+            if not (staged / "page.md").exists():
+                render_bundle(staged)
+            sequence = 1 + max(_sequences(model_dir), default=0)
+            write_file(
+                staged / PUBLISHED,
+                canonical_json({"sequence": sequence, "published": build_date()}),
+            )
+            write_checksums(staged)
+            if dest.exists():
+                intent = {"release": release, "new": _checksums_digest(staged)}
+                write_file(tmp / _INTENT, canonical_json(intent))
+                exchange_folders(staged, dest)
+                fsync_path(model_dir, directory=True)
+                _file_in_history(staged, model_dir, release)
+            else:
+                os.rename(staged, dest)
+                fsync_path(model_dir, directory=True)
+        shutil.rmtree(tmp)
+    return dest
+
+
+def list_releases(archive: str | Path, model: str) -> list[dict[str, Any]]:
+    """Published releases of ``model``, newest first, with their analysis and sequence."""
+    folder = Path(archive) / model
+    out = []
+    if not folder.is_dir():
+        return out
+    for child in sorted(folder.iterdir()):
+        if child.name.startswith(".") or not (child / PUBLISHED).exists():
+            continue
+        check_name("release", child.name)
+        meta = _read_json(child / PUBLISHED)
+        out.append(
+            {
+                "release": child.name,
+                "folder": child,
+                "sequence": meta["sequence"],
+                "published": meta["published"],
+                "analysis": _read_analysis(child),
+            }
+        )
+    out.sort(key=lambda r: -r["sequence"])
+    return out
+
+
+# -- verification ------------------------------------------------------------------------
+
+
+@dataclass
+class Verification:
+    """What :func:`verify_archive` found, bundle by bundle."""
+
+    archive: Path
+    bundles: list[str] = field(default_factory=list)
+    findings: list[Finding] = field(default_factory=list)
+
+    @property
+    def problems(self) -> list[Finding]:
+        return [f for f in self.findings if f.problem]
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems
+
+    def report(self) -> str:
+        lines = [f"archive {self.archive}: {len(self.bundles)} bundles checked"]
+        lines += [f"  {f}" for f in self.findings]
+        n = len(self.problems)
+        lines.append(
+            "no file changed, went missing or was added" if n == 0 else f"{n} problems found"
+        )
+        return "\n".join(lines) + "\n"
+
+
+def verify_archive(archive: str | Path) -> Verification:
+    """Check every bundle of ``archive``, current and in history, against its checksums.
+
+    Reports files that changed, went missing or were added, symbolic links, anything that
+    is not part of the layout, and gaps in each model's publication sequence (a whole
+    bundle that went missing). Reads only; changes nothing.
+    """
+    archive = Path(archive)
+    if archive.is_symlink() or not archive.is_dir():
+        raise ArchiveError(f"{archive}: no such archive folder (or it is a symbolic link).")
+    v = Verification(archive)
+
+    def note(kind: str, path: Path, detail: str = "") -> None:
+        v.findings.append(Finding(kind, path.relative_to(archive).as_posix(), detail))
+
+    def check(bundle: Path) -> None:
+        v.bundles.append(bundle.relative_to(archive).as_posix())
+        v.findings.extend(bundle_findings(bundle, relative_to=archive))
+
+    for model_dir in sorted(archive.iterdir()):
+        if model_dir.is_symlink():
+            note("link", model_dir, "archives may not hold symbolic links")
+            continue
+        if model_dir.name == LOCK and model_dir.is_file():
+            continue
+        if not model_dir.is_dir() or not re.fullmatch(NAME_PATTERN, model_dir.name):
+            note("added", model_dir, "not a model folder")
+            continue
+        for child in sorted(model_dir.iterdir()):
+            if child.is_symlink():
+                note("link", child, "archives may not hold symbolic links")
+            elif child.name == HISTORY and child.is_dir():
+                _verify_history(child, check, note)
+            elif child.name.startswith(INCOMING) and child.is_dir():
+                _verify_incoming(child, check, note)
+            elif child.is_dir() and re.fullmatch(NAME_PATTERN, child.name):
+                check(child)
+            else:
+                note("added", child, "not a release folder")
+        pending = [p for p in map(_replaced_bundle, model_dir.glob(INCOMING + "*")) if p]
+        seqs = sorted(_sequences(model_dir) + [s for p in pending for s in _sequence(p)])
+        expected = list(range(1, len(seqs) + 1))
+        if seqs != expected:
+            gaps = sorted(set(range(1, (max(seqs) if seqs else 0) + 1)) - set(seqs))
+            dups = sorted({s for s in seqs if seqs.count(s) > 1})
+            detail = ", ".join(
+                ([f"publication number(s) {gaps} missing"] if gaps else [])
+                + ([f"publication number(s) {dups} repeated"] if dups else [])
+            )
+            note("sequence", model_dir, detail + "; a whole bundle was removed or copied in")
+    return v
+
+
+def _verify_history(history: Path, check, note) -> None:
+    for rel in sorted(history.iterdir()):
+        if rel.is_symlink():
+            note("link", rel, "archives may not hold symbolic links")
+            continue
+        if not rel.is_dir():
+            note("added", rel, "not a release folder of the history")
+            continue
+        for n in sorted(rel.iterdir()):
+            if n.is_symlink():
+                note("link", n, "archives may not hold symbolic links")
+            elif n.is_dir() and n.name.isdigit():
+                check(n)
+            else:
+                note("added", n, "not a numbered bundle of the history")
+
+
+def _verify_incoming(tmp: Path, check, note) -> None:
+    old = _replaced_bundle(tmp)
+    if old is None:
+        note(
+            "leftover",
+            tmp,
+            "an interrupted publish that changed nothing; the next publish removes it",
+        )
+    else:
+        note("pending", tmp, "a replaced bundle, complete; the next publish files it in history")
+        check(old)
