@@ -32,22 +32,31 @@ def _progress(quiet: bool):
 
 
 def _write_bundle(audit, out: Path) -> None:
-    """Write the bundle and its page into a temporary folder, then move it to ``out``."""
-    from topoaudit.report.archive import write_checksums
+    """Write the bundle, its page and its checksums beside ``out``, then rename it into place.
+
+    Killed part-way, only a hidden ``.<name>.*`` folder is left, which the next write to
+    the same place removes; ``out`` appears complete or not at all.
+    """
+    from topoaudit.report.archive import locked, unlocked, write_checksums
     from topoaudit.report.page import render_bundle
 
     out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
+    prefix = f".{out.name}.partial-"
+    for stale in out.parent.glob(prefix + "*"):
+        if stale.is_dir() and not stale.is_symlink() and unlocked(stale / ".lock"):
+            shutil.rmtree(stale, ignore_errors=True)
+    tmp = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
     try:
-        audit.write(tmp)
-        render_bundle(tmp)
-        write_checksums(tmp)
-        if out.exists():
-            out.rmdir()
-        tmp.rename(out)
-    except BaseException:
+        with locked(tmp / ".lock"):
+            staged = tmp / "bundle"
+            audit.write(staged)
+            render_bundle(staged)
+            write_checksums(staged)
+            if out.exists():
+                out.rmdir()
+            staged.rename(out)
+    finally:
         shutil.rmtree(tmp, ignore_errors=True)
-        raise
 
 
 def _summary(result) -> str:

@@ -378,13 +378,25 @@ def _checksums_digest(folder: Path) -> str | None:
         return None
 
 
+def _same_bundle(bundle: Path, published: Path) -> bool:
+    """True if ``published`` holds exactly the files of ``bundle`` (plus its own records)."""
+    try:
+        recorded = dict(_read_json(published / CHECKSUMS)["files"])
+    except (OSError, ValueError, KeyError, TypeError):
+        return False
+    recorded.pop(PUBLISHED, None)
+    mine = {rel: _sha256(p) for rel, p in _files(bundle).items() if rel != CHECKSUMS}
+    return mine == recorded and not bundle_findings(published)
+
+
 def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -> Path:
     """Add ``bundle`` to ``archive`` as ``<model>/<release>/``.
 
     A published release is never overwritten: without ``replace`` an existing release is
-    refused and nothing changes; with it, the old bundle moves to the model's history
-    (with its checksums). A bundle whose files no longer match its ``checksums.json``, or
-    that holds a symbolic link, is refused.
+    refused and nothing changes (unless it holds exactly this bundle already, so that a
+    publish run again after an interruption succeeds); with it, the old bundle moves to
+    the model's history (with its checksums). A bundle whose files no longer match its
+    ``checksums.json``, or that holds a symbolic link, is refused.
     """
     from topoaudit.report.page import render_bundle
 
@@ -410,6 +422,8 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
         if dest.is_symlink():
             raise ArchiveError(f"{dest}: is a symbolic link; archives may not hold links.")
         if dest.exists() and not replace:
+            if _same_bundle(bundle, dest):
+                return dest  # published before, file for file: running again changes nothing
             msg = (
                 f"{dest}: release {release!r} of model {model!r} is already published; pass "
                 "--replace to replace it (the old bundle is kept in the archive's history)."

@@ -10,6 +10,7 @@ other files is never replaced.
 
 from __future__ import annotations
 
+import html
 import json
 import logging
 import os
@@ -125,6 +126,13 @@ def _write(path: Path, text: str) -> None:
 def build_site(archive: str | Path, out: str | Path, *, site_name: str = "Model audits") -> Path:
     """Build the static site of ``archive`` into ``out`` (replaced only when complete)."""
     archive, out = Path(archive), Path(out)
+    if (
+        not isinstance(site_name, str)
+        or not 0 < len(site_name) <= 200
+        or not site_name.isprintable()
+    ):
+        msg = f"The site name {site_name!r} is not allowed; give 1 to 200 printable characters."
+        raise ArchiveError(msg)
     if archive.is_symlink() or not archive.is_dir():
         raise ArchiveError(f"{archive}: no such archive folder (or it is a symbolic link).")
     template = _template_dir()
@@ -194,7 +202,8 @@ def _build_into(work: Path, archive: Path, out: Path, template: Path, site_name:
     for name in ("charts.js", "topoaudit.css"):
         shutil.copyfile(template / "assets" / name, assets / name)
     yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
-    yml = yml.replace('"{site_name}"', json.dumps(site_name))
+    # mkdocs' theme templates put site_name into the HTML as it is: escape it here
+    yml = yml.replace('"{site_name}"', json.dumps(html.escape(site_name)))
     yml += "nav:\n" + _nav_yaml(nav, 1)
     (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
     log.info("running mkdocs build")
