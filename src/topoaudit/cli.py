@@ -75,6 +75,8 @@ def _audit(args: argparse.Namespace) -> int:
     from topoaudit.config import load_config
 
     out = Path(args.out)
+    if out.is_symlink():
+        raise TopoauditError(f"{out}: the output folder is a symbolic link; give the real one.")
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
         msg = f"{out}: the output folder exists and is not empty; choose a new folder."
         raise TopoauditError(msg)
@@ -235,6 +237,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(args.run(args))
     except TopoauditError as exc:
         print(f"topoaudit: error: {exc}", file=sys.stderr)
+        return 2
+    except OSError as exc:  # a disk full, a permission refused: name the file, no traceback
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(
+            f"topoaudit: error: {where}{exc.strerror or exc}; nothing already published was "
+            "changed (an interrupted publish is finished by the next one).",
+            file=sys.stderr,
+        )
         return 2
 
 

@@ -172,11 +172,15 @@ def exchange_folders(a: Path, b: Path) -> None:
             return
         code = ctypes.get_errno()
         if code not in (errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP):
-            raise OSError(code, os.strerror(code), str(a))
-    swap = a.with_name(a.name + ".swap")  # pragma: no cover - kernels without renameat2
-    os.rename(b, swap)  # pragma: no cover
-    os.rename(a, b)  # pragma: no cover
-    os.rename(swap, a)  # pragma: no cover
+            raise OSError(code, os.strerror(code), str(a), None, str(b))
+    swap = a.with_name(a.name + ".swap")
+    os.rename(b, swap)
+    try:
+        os.rename(a, b)
+    except BaseException:
+        os.rename(swap, b)  # put ``b`` back before reporting the failure
+        raise
+    os.rename(swap, a)
 
 
 @contextlib.contextmanager
@@ -430,28 +434,36 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
             )
             raise ArchiveError(msg)
         tmp = Path(tempfile.mkdtemp(prefix=f"{INCOMING}{release}-", dir=model_dir))
-        with locked(tmp / LOCK):
-            staged = tmp / "bundle"
-            _copy_tree(bundle, staged)
-            if (staged / CHECKSUMS).exists():
-                refuse_changed(staged)
-            if not (staged / "page.md").exists():
-                render_bundle(staged)
-            sequence = 1 + max(_sequences(model_dir), default=0)
-            write_file(
-                staged / PUBLISHED,
-                canonical_json({"sequence": sequence, "published": build_date()}),
-            )
-            write_checksums(staged)
-            if dest.exists():
-                intent = {"release": release, "new": _checksums_digest(staged)}
-                write_file(tmp / _INTENT, canonical_json(intent))
-                exchange_folders(staged, dest)
-                fsync_path(model_dir, directory=True)
-                _file_in_history(staged, model_dir, release)
-            else:
-                os.rename(staged, dest)
-                fsync_path(model_dir, directory=True)
+        committed = False
+        try:
+            with locked(tmp / LOCK):
+                staged = tmp / "bundle"
+                _copy_tree(bundle, staged)
+                if (staged / CHECKSUMS).exists():
+                    refuse_changed(staged)
+                if not (staged / "page.md").exists():
+                    render_bundle(staged)
+                sequence = 1 + max(_sequences(model_dir), default=0)
+                write_file(
+                    staged / PUBLISHED,
+                    canonical_json({"sequence": sequence, "published": build_date()}),
+                )
+                write_checksums(staged)
+                if dest.exists():
+                    intent = {"release": release, "new": _checksums_digest(staged)}
+                    write_file(tmp / _INTENT, canonical_json(intent))
+                    exchange_folders(staged, dest)
+                    committed = True
+                    fsync_path(model_dir, directory=True)
+                    _file_in_history(staged, model_dir, release)
+                else:
+                    os.rename(staged, dest)
+                    committed = True
+                    fsync_path(model_dir, directory=True)
+        except BaseException:
+            if not committed:  # nothing changed: drop the copy; else the next publish files it
+                shutil.rmtree(tmp, ignore_errors=True)
+            raise
         shutil.rmtree(tmp)
     return dest
 
@@ -466,7 +478,15 @@ def list_releases(archive: str | Path, model: str) -> list[dict[str, Any]]:
         if child.name.startswith(".") or not (child / PUBLISHED).exists():
             continue
         check_name("release", child.name)
-        meta = _read_json(child / PUBLISHED)
+        try:
+            meta = _read_json(child / PUBLISHED)
+            int(meta["sequence"]), str(meta["published"])
+        except (OSError, ValueError, KeyError, TypeError) as exc:
+            msg = (
+                f"{child / PUBLISHED}: cannot be read ({exc!r}); run topoaudit archive "
+                "verify to see what changed."
+            )
+            raise ArchiveError(msg) from exc
         out.append(
             {
                 "release": child.name,
