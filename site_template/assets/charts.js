@@ -1,9 +1,15 @@
 /* Turns each <figure class="ta-chart"> into an interactive chart.
    The Vega-Lite spec is inlined in the page (a <script type="application/json">), so
    pages work from a server and from disk alike; the static SVG stays as the fallback
-   when scripts are off or a chart cannot be drawn. */
+   when scripts are off or a chart cannot be drawn.
+   Strings in a spec (column names, category values) are data: Vega draws them as text,
+   and tooltips, which are HTML, get every value and title escaped here. */
 (function () {
   "use strict";
+  var ENTITIES = { "&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;", "'": "&#39;" };
+  function escapeHtml(value) {
+    return String(value).replace(/[&<>"']/g, function (c) { return ENTITIES[c]; });
+  }
   function renderAll() {
     var figures = document.querySelectorAll("figure.ta-chart");
     figures.forEach(function (figure) {
@@ -14,7 +20,11 @@
       var holder = document.createElement("div");
       holder.className = "ta-view";
       figure.insertBefore(holder, figure.firstChild);
-      window.vegaEmbed(holder, spec, { actions: false, renderer: "svg" })
+      window.vegaEmbed(holder, spec, {
+        actions: false,
+        renderer: "svg",
+        tooltip: { sanitize: escapeHtml }
+      })
         .then(function () {
           var fallback = figure.querySelector("img");
           if (fallback) { fallback.style.display = "none"; }

@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import hashlib
 import re
+import shutil
 import subprocess
 import sys
 
 import pytest
 
 from topoaudit.cli import main
+from topoaudit.report.archive import write_checksums
 from topoaudit.report.site import ArchiveError, build_site, list_releases, publish
 
 
@@ -22,11 +24,27 @@ def _tree_digest(folder):
     return h.hexdigest()
 
 
-def test_publishing_over_a_release_is_refused_and_changes_nothing(fixture_archive):
+def _changed_copy(bundle, folder):
+    """A bundle of the same release whose page differs (checksums renewed)."""
+    copy = folder / "changed"
+    shutil.copytree(bundle, copy)
+    (copy / "page.md").write_text((copy / "page.md").read_text() + "\nA later note.\n")
+    write_checksums(copy)
+    return copy
+
+
+def test_publishing_over_a_release_is_refused_and_changes_nothing(fixture_archive, tmp_path):
     _, bundles, archive = fixture_archive
     before = _tree_digest(archive)
     with pytest.raises(ArchiveError, match=r"already published; pass --replace"):
-        publish(bundles["2026.2"], archive)
+        publish(_changed_copy(bundles["2026.2"], tmp_path), archive)
+    assert _tree_digest(archive) == before
+
+
+def test_publishing_the_same_bundle_again_changes_nothing(fixture_archive):
+    _, bundles, archive = fixture_archive
+    before = _tree_digest(archive)
+    assert publish(bundles["2026.2"], archive) == archive / "meter-failure" / "2026.2"
     assert _tree_digest(archive) == before
 
 
@@ -95,7 +113,8 @@ def test_diff_prints_deterministic_markdown(fixture_archive, capsys):
 
 def test_cli_site_build_and_publish_refusal(fixture_archive, tmp_path, capsys):
     _, bundles, archive = fixture_archive
-    assert main(["publish", str(bundles["2026.2"]), "--archive", str(archive)]) == 2
+    changed = _changed_copy(bundles["2026.2"], tmp_path)
+    assert main(["publish", str(changed), "--archive", str(archive)]) == 2
     assert "already published" in capsys.readouterr().err
     out = tmp_path / "site"
     assert main(["site", "build", "--archive", str(archive), "--out", str(out)]) == 0

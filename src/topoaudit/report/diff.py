@@ -1,10 +1,15 @@
-"""The Markdown summary of what changed between two bundles (for a pull request)."""
+"""The Markdown summary of what changed between two bundles (for a pull request).
+
+Every name in it (model, releases, weak-region ids, metric names) goes through
+:func:`~topoaudit.report.text.escape`; every number is a count or a rate over a whole
+weak region or data set, never one row's value.
+"""
 
 from __future__ import annotations
 
 from typing import Any
 
-from topoaudit.report.text import escape, pvalue, rate, signed
+from topoaudit.report.text import count, escape, pvalue, rate, signed
 
 __all__ = ["diff_markdown"]
 
@@ -39,7 +44,7 @@ def diff_markdown(d: dict[str, Any], *, heading: str = "##") -> str:
     lines += ["| metric | before | after | change |", "|---|---|---|---|"]
     for m in d["metrics"]:
         lines.append(
-            f"| {NAMES.get(m['metric'], m['metric'])} | {rate(m['before'])} | "
+            f"| {escape(NAMES.get(m['metric'], m['metric']))} | {rate(m['before'])} | "
             f"{rate(m['after'])} | {signed(m['change'])} |"
         )
     lines.append("")
@@ -50,7 +55,7 @@ def diff_markdown(d: dict[str, Any], *, heading: str = "##") -> str:
         out = [f"{title}:", ""]
         for w in items:
             out.append(
-                f"- {escape(w['id'])}: {w['rows']:,} rows, "
+                f"- {escape(w['id'])}: {count(w['rows'])} rows, "
                 f"{escape(w['kind'].replace('_', ' '))}s, observed / promised "
                 f"{rate(w['ratio'], 2)}, adjusted p-value {pvalue(w['p_adjusted'])}"
             )

@@ -5,12 +5,34 @@ twice: as an SVG file rendered by vl-convert (so the Markdown reads in a pull-re
 diff) and as its Vega-Lite spec inlined in a ``<script type="application/json">`` block,
 which the site's chart loader turns into the interactive chart (inlined, because
 browsers refuse to fetch JSON from ``file://`` pages).
+
+Strings from the user's data or config are escaped where they land (see
+:mod:`topoaudit.report.text`): Markdown text, raw HTML and inlined JSON each have their own
+escaping.
+
+**Aggregates only.** A page, its charts and its search text never carry a row: no id, no
+feature value, no score of one row. Every number is a count, or a statistic over at
+least :data:`MIN_CELL_ROWS` rows. Graph nodes, regions, score bins of the calibration
+curves and the halves of a weak region with fewer rows show their row count only; their
+rates, means and descriptions are left out (small-cell suppression: a "mean" over one row
+is that row's value). The threshold of 10 follows common practice in statistical
+disclosure control (common practice, no source). Node statistics in the graph view are
+rounded to 3 decimals, as the tooltips show them, so that overlapping nodes (Mapper
+nodes share rows) cannot be differenced back to one row's score with any precision.
+A region description holds means over the region and the thresholds of a surrogate tree
+(midway between two neighbouring values, to 4 significant digits, with at least 5 rows on
+each side); neither is one row's value.
+
+**Nodes drawn.** The graph view draws at most
+:data:`topoaudit.limits.MAX_NODES_DRAWN` nodes: every node of a weak region first, then
+the others largest first (by rows), with the edges between drawn nodes; the page says how
+many of how many are drawn.
 """
 
 from __future__ import annotations
 
-import html
 import json
+import math
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -18,10 +40,24 @@ from typing import Any
 import networkx as nx
 import pandas as pd
 
+from topoaudit import limits
 from topoaudit.report import views
-from topoaudit.report.text import count, escape, pvalue, rate, signed
+from topoaudit.report.text import (
+    code_fence,
+    count,
+    escape,
+    html_text,
+    pvalue,
+    rate,
+    script_json,
+    signed,
+)
 
-__all__ = ["Page", "build_page", "node_layout", "render_bundle"]
+__all__ = ["MIN_CELL_ROWS", "Page", "build_page", "drawn_graph", "node_layout", "render_bundle"]
+
+#: Fewest rows behind any rate, mean or description a page shows (small-cell suppression).
+MIN_CELL_ROWS = 10
+NOT_SHOWN = f"not shown (fewer than {MIN_CELL_ROWS} rows)"
 
 STANDING_CAUTIONS = (
     "**Sample sizes.** Every estimate on this page comes from a finite sample; small "
@@ -65,18 +101,61 @@ def node_layout(graph: dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
     )
 
 
+def drawn_graph(graph: dict[str, Any]) -> dict[str, Any]:
+    """The part of ``graph`` the graph view draws: all of it up to
+    :data:`topoaudit.limits.MAX_NODES_DRAWN` nodes; past that, the nodes of weak regions
+    first, then the others by rows (largest first, ties by id), and the edges between
+    drawn nodes."""
+    nodes = graph["nodes"]
+    limit = limits.MAX_NODES_DRAWN
+    if len(nodes) <= limit:
+        return graph
+    ranked = sorted(nodes, key=lambda n: (not n["weak_regions"], -n["rows"], str(n["id"])))
+    keep = {n["id"] for n in ranked[:limit]}
+    return {
+        **graph,
+        "nodes": [n for n in nodes if n["id"] in keep],
+        "links": [e for e in graph["links"] if e["source"] in keep and e["target"] in keep],
+    }
+
+
+def _small(rows: Any) -> bool:
+    return rows is None or rows < MIN_CELL_ROWS
+
+
+def _half(h: dict[str, Any], key: str, digits: int = 3) -> str:
+    """A rate of one half of a weak region, unless that half is a small cell."""
+    return "not shown" if _small(h["rows"]) else rate(h[key], digits)
+
+
+def _node_stat(node: dict[str, Any], value: Any) -> float | None:
+    """A node statistic as drawn: rounded to 3 decimals, left out for small nodes."""
+    if _small(node["rows"]) or value is None or not math.isfinite(float(value)):
+        return None
+    return round(float(value), 3)
+
+
 def _graph_frames(graph: dict[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
     layout = node_layout(graph).set_index("node")
+    shown = graph["nodes"]
     nodes = pd.DataFrame(
         {
-            "node": [n["id"] for n in graph["nodes"]],
-            "rows": [n["rows"] for n in graph["nodes"]],
-            "region": [n["region"] for n in graph["nodes"]],
-            "loss": [n["loss"] for n in graph["nodes"]],
-            "expected_loss": [n["expected_loss"] for n in graph["nodes"]],
-            "excess": [round(n["loss"] - n["expected_loss"], 6) for n in graph["nodes"]],
-            "mean_score": [n["mean_score"] for n in graph["nodes"]],
-            "weak": [", ".join(n["weak_regions"]) for n in graph["nodes"]],
+            "node": [n["id"] for n in shown],
+            "rows": [n["rows"] for n in shown],
+            "region": [n["region"] for n in shown],
+            "loss": [_node_stat(n, n["loss"]) for n in shown],
+            "expected_loss": [_node_stat(n, n["expected_loss"]) for n in shown],
+            "excess": [
+                _node_stat(
+                    n,
+                    None
+                    if n["loss"] is None or n["expected_loss"] is None
+                    else n["loss"] - n["expected_loss"],
+                )
+                for n in shown
+            ],
+            "mean_score": [_node_stat(n, n["mean_score"]) for n in shown],
+            "weak": [", ".join(n["weak_regions"]) for n in shown],
         }
     )
     nodes["x"] = nodes["node"].map(layout["x"])
@@ -97,11 +176,10 @@ def _headline(task: str) -> tuple[str, str]:
 
 
 def _chart_block(name: str, spec: dict[str, Any], alt_text: str) -> str:
-    data = json.dumps(spec, sort_keys=True, separators=(",", ":")).replace("</", "<\\/")
     return (
-        f'<figure class="ta-chart" data-chart="{name}">\n'
-        f'<img src="charts/{name}.svg" alt="{escape(alt_text)}">\n'
-        f'<script type="application/json" class="ta-spec">{data}</script>\n'
+        f'<figure class="ta-chart" data-chart="{html_text(name)}">\n'
+        f'<img src="charts/{html_text(name)}.svg" alt="{html_text(alt_text)}">\n'
+        f'<script type="application/json" class="ta-spec">{script_json(spec)}</script>\n'
         "</figure>\n"
     )
 
@@ -129,7 +207,12 @@ def _cautions(a: dict[str, Any]) -> list[str]:
             "and were not tested; they are neither confirmed nor cleared."
         )
     for r in a["regions"]:
-        if r["rows"] < min_rows:
+        if _small(r["rows"]):
+            out.append(
+                f"Region {r['id']} has only {count(r['rows'])} rows; its metrics are not "
+                f"shown (fewer than {MIN_CELL_ROWS} rows)."
+            )
+        elif r["rows"] < min_rows:
             out.append(
                 f"Region {r['id']} has only {count(r['rows'])} rows; its metrics are fragile."
             )
@@ -137,6 +220,42 @@ def _cautions(a: dict[str, Any]) -> list[str]:
     if dropped:
         out.append(f"{count(dropped)} rows with missing values were dropped before the audit.")
     return out
+
+
+def _description(desc: dict[str, Any]) -> list[str]:
+    """Who is in a weak region: feature contrasts, categories and the surrogate rule."""
+    lines = [
+        "Who is in it (largest standardised mean differences against the other rows):",
+        "",
+        "| feature | mean inside | mean outside | standardised difference |",
+        "|---|---|---|---|",
+    ]
+    for fc in desc["contrasts"]:
+        lines.append(
+            f"| {escape(fc['feature'])} | {rate(fc['region_mean'])} | "
+            f"{rate(fc['rest_mean'])} | {signed(fc['smd'], 2)} |"
+        )
+    lines.append("")
+    if desc["categories"]:
+        lines.append(
+            "Over-represented categories: "
+            + "; ".join(
+                f"{escape(cc['feature'])} = {escape(cc['category'])} "
+                f"({cc['region_share'] * 100:.0f}% inside, {cc['rest_share'] * 100:.0f}% "
+                "outside)"
+                for cc in desc["categories"]
+            )
+            + "."
+        )
+        lines.append("")
+    rule = desc["rule"]
+    lines += [
+        f"Approximate rule (a depth-{rule['depth']} surrogate tree, an approximation of "
+        f"the region): {escape(rule['text'])}; precision {rate(rule['precision'], 2)}, "
+        f"recall {rate(rule['recall'], 2)}.",
+        "",
+    ]
+    return lines
 
 
 def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
@@ -218,45 +337,22 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             "| | discovery half | confirmation half |",
             "|---|---|---|",
             f"| rows | {count(d['rows'])} | {count(c['rows'])} |",
-            f"| observed rate | {rate(d['observed_rate'])} | {rate(c['observed_rate'])} |",
-            f"| rate the scores promise | {rate(d['expected_rate'])} | "
-            f"{rate(c['expected_rate'])} |",
-            f"| observed / promised | {rate(d['ratio'], 2)} | {rate(c['ratio'], 2)} |",
+            f"| observed rate | {_half(d, 'observed_rate')} | {_half(c, 'observed_rate')} |",
+            f"| rate the scores promise | {_half(d, 'expected_rate')} | "
+            f"{_half(c, 'expected_rate')} |",
+            f"| observed / promised | {_half(d, 'ratio', 2)} | {_half(c, 'ratio', 2)} |",
             "",
-            f"Excess on the confirmation half: {signed(w['effect'])} per row; one-sided "
-            f"p-value {pvalue(w['p_value'])}, adjusted (Benjamini–Hochberg) "
-            f"{pvalue(w['p_adjusted'])}.",
-            "",
-            "Who is in it (largest standardised mean differences against the other rows):",
-            "",
-            "| feature | mean inside | mean outside | standardised difference |",
-            "|---|---|---|---|",
         ]
-        for fc in desc["contrasts"]:
-            lines.append(
-                f"| {escape(fc['feature'])} | {rate(fc['region_mean'])} | "
-                f"{rate(fc['rest_mean'])} | {signed(fc['smd'], 2)} |"
-            )
-        lines.append("")
-        if desc["categories"]:
-            lines.append(
-                "Over-represented categories: "
-                + "; ".join(
-                    f"{escape(cc['feature'])} = {escape(cc['category'])} "
-                    f"({cc['region_share'] * 100:.0f}% inside, {cc['rest_share'] * 100:.0f}% "
-                    "outside)"
-                    for cc in desc["categories"]
-                )
-                + "."
-            )
-            lines.append("")
-        rule = desc["rule"]
+        excess = "not shown" if _small(c["rows"]) else f"{signed(w['effect'])} per row"
         lines += [
-            f"Approximate rule (a depth-{rule['depth']} surrogate tree, an approximation of "
-            f"the region): {escape(rule['text'])}; precision {rate(rule['precision'], 2)}, "
-            f"recall {rate(rule['recall'], 2)}.",
+            f"Excess on the confirmation half: {excess}; one-sided p-value "
+            f"{pvalue(w['p_value'])}, adjusted (Benjamini–Hochberg) {pvalue(w['p_adjusted'])}.",
             "",
         ]
+        if _small(w["rows"]):
+            lines += [f"Who is in it: {NOT_SHOWN}.", ""]
+        else:
+            lines += _description(desc)
         lm = w["local_model"]
         if lm["verdict"] == "too small to try":
             lines.append("Local model: the region is too small to try one.")
@@ -265,7 +361,7 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
                 f"Local model ({escape(lm['model'])}, {lm['folds']}-fold): held-out loss "
                 f"{rate(lm['local_loss'])} against the release's {rate(lm['release_loss'])}; "
                 f"difference {signed(lm['difference'])} (95% interval {signed(lm['low'])} to "
-                f"{signed(lm['high'])}): **{lm['verdict']}**."
+                f"{signed(lm['high'])}): **{escape(lm['verdict'])}**."
             )
         stab = w.get("stability")
         lines += [
@@ -277,9 +373,20 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             "",
         ]
 
-    nodes, edges = _graph_frames(graph)
+    drawn = drawn_graph(graph)
+    n_drawn, n_all = len(drawn["nodes"]), len(graph["nodes"])
+    nodes, edges = _graph_frames(drawn)
+    notes = []
+    if n_drawn < n_all:
+        notes.append(
+            f"showing {count(n_drawn)} of {count(n_all)} nodes: those of weak regions, "
+            "then the largest"
+        )
+    n_small = sum(_small(n["rows"]) for n in drawn["nodes"])
+    if n_small:
+        notes.append(f"grey: nodes of fewer than {MIN_CELL_ROWS} rows, statistics not shown")
     gchart = views.graph_view(
-        nodes, edges, title="The shape of the validation data (Mapper graph)"
+        nodes, edges, title="The shape of the validation data (Mapper graph)", notes=notes
     ).to_dict()
     charts["graph"] = gchart
     inv = a["graph"]["invariants"]
@@ -293,22 +400,35 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
         "graphs (see how to reproduce); here a node is ringed when at least half of its "
         "rows belong to a weak region.",
         "",
-        _chart_block("graph", gchart, "Mapper graph of the validation data"),
     ]
+    if n_drawn < n_all:
+        lines += [
+            f"**The drawing shows {count(n_drawn)} of {count(n_all)} nodes**: every node of a "
+            "weak region and, of the others, the largest by rows, with the edges between "
+            f"drawn nodes ({count(len(drawn['links']))} of {count(len(graph['links']))} "
+            f"edges); the other {count(n_all - n_drawn)}, the smallest outside weak regions, "
+            "are left out. The counts above are of the whole graph.",
+            "",
+        ]
+    if n_small:
+        lines += [
+            f"{count(n_small)} node(s) hold fewer than {MIN_CELL_ROWS} rows: they are drawn "
+            "grey, without their rates or mean score, so that no row's own values show.",
+            "",
+        ]
+    lines.append(_chart_block("graph", gchart, "Mapper graph of the validation data"))
 
+    shown_regions = [r for r in a["regions"] if not _small(r["rows"])]
     reg = pd.DataFrame(
         {
-            "region": [f"region {r['id']}" for r in a["regions"]],
-            "value": [r["metrics"][key]["value"] for r in a["regions"]],
-            "low": [r["metrics"][key]["low"] for r in a["regions"]],
-            "high": [r["metrics"][key]["high"] for r in a["regions"]],
+            "region": [f"region {r['id']}" for r in shown_regions],
+            "value": [r["metrics"][key]["value"] for r in shown_regions],
+            "low": [r["metrics"][key]["low"] for r in shown_regions],
+            "high": [r["metrics"][key]["high"] for r in shown_regions],
         }
     )
     if a["task"] != "binary":
         reg["low"], reg["high"] = reg["value"], reg["value"]
-    charts["regions"] = views.region_error_view(
-        reg, overall=o[key]["value"], metric_title=label
-    ).to_dict()
     lines += [
         "## Regions",
         "",
@@ -316,16 +436,29 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
         "communities); "
         "every row has one home region and the table adds up to the whole data set.",
         "",
-        _chart_block("regions", charts["regions"], f"{label} by region"),
+    ]
+    if len(shown_regions) < len(a["regions"]):
+        lines += [
+            f"Regions of fewer than {MIN_CELL_ROWS} rows show their size only.",
+            "",
+        ]
+    if shown_regions:
+        charts["regions"] = views.region_error_view(
+            reg, overall=o[key]["value"], metric_title=label
+        ).to_dict()
+        lines.append(_chart_block("regions", charts["regions"], f"{label} by region"))
+    lines += [
         f"| region | rows | nodes | {label} | 95% interval |",
         "|---|---|---|---|---|",
     ]
     for r in a["regions"]:
         est = r["metrics"][key]
-        lines.append(
-            f"| {r['id']} | {count(r['rows'])} | {r['nodes']} | {rate(est['value'])} | "
-            f"{rate(est['low'])} to {rate(est['high'])} |"
+        cells = (
+            f"{NOT_SHOWN} | "
+            if _small(r["rows"])
+            else f"{rate(est['value'])} | {rate(est['low'])} to {rate(est['high'])}"
         )
+        lines.append(f"| {r['id']} | {count(r['rows'])} | {r['nodes']} | {cells} |")
     lines.append(
         f"| all | {count(prov['rows'])} | {inv['n_nodes']} | {rate(o[key]['value'])} | "
         f"{rate(o[key]['low'])} to {rate(o[key]['high'])} |"
@@ -337,8 +470,16 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
                 {"region": f"region {r['id']}", **b}
                 for r in a["regions"]
                 for b in r.get("calibration", [])
+                if not _small(b["rows"])
             ]
         )
+        n_bins = sum(len(r.get("calibration", [])) for r in a["regions"])
+        if len(bins) < n_bins:
+            lines += [
+                f"Score bins of fewer than {MIN_CELL_ROWS} rows are left out of the "
+                "calibration curves.",
+                "",
+            ]
         if not bins.empty:
             charts["calibration"] = views.calibration_view(bins).to_dict()
             lines += [
@@ -383,17 +524,15 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
 
     comp = a.get("comparison")
     if comp:
+        compared = [c for c in comp["regions"] if not _small(c["rows"])]
         ch = pd.DataFrame(
             {
-                "region": [f"region {c['region']}" for c in comp["regions"]],
-                "value": [c["change"] for c in comp["regions"]],
-                "low": [c["low"] for c in comp["regions"]],
-                "high": [c["high"] for c in comp["regions"]],
+                "region": [f"region {c['region']}" for c in compared],
+                "value": [c["change"] for c in compared],
+                "low": [c["low"] for c in compared],
+                "high": [c["high"] for c in compared],
             }
         )
-        charts["comparison"] = views.comparison_view(
-            ch, baseline=comp["baseline"], candidate=comp["candidate"]
-        ).to_dict()
         ov = comp["overall"]
         lines += [
             f"## Against release {escape(comp['baseline'])}",
@@ -405,9 +544,17 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             f"{', '.join(str(x) for x in comp['better']) or 'none'} (Benjamini–Hochberg "
             "across regions).",
             "",
-            _chart_block("comparison", charts["comparison"], "change in error by region"),
-            "",
         ]
+        if len(compared) < len(comp["regions"]):
+            lines += [f"Regions of fewer than {MIN_CELL_ROWS} rows are left out of the chart.", ""]
+        if compared:
+            charts["comparison"] = views.comparison_view(
+                ch, baseline=comp["baseline"], candidate=comp["candidate"]
+            ).to_dict()
+            lines += [
+                _chart_block("comparison", charts["comparison"], "change in error by region"),
+                "",
+            ]
 
     lines += ["## Cautions", ""]
     lines += [f"- {c}" for c in _cautions(a)]
@@ -418,9 +565,9 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     lines += [
         "## How to reproduce",
         "",
-        "```",
-        prov["command"] or f"topoaudit audit CONFIG --out BUNDLE --release {a['release']}",
-        "```",
+        code_fence(
+            prov["command"] or f"topoaudit audit CONFIG --out BUNDLE --release {a['release']}"
+        ),
         "",
         f"- seed {prov['seed']}; data file {escape(prov['data_file'])}, fingerprint "
         f"`{prov['fingerprint']}`",
@@ -437,7 +584,7 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
         "The configuration used (as read, with defaults filled in):",
         "",
         '<pre class="ta-config"><code>'
-        + html.escape(json.dumps(a["config"], sort_keys=True, indent=1))
+        + html_text(json.dumps(a["config"], sort_keys=True, indent=1))
         + "</code></pre>",
         "",
     ]

@@ -28,6 +28,7 @@ COLOURS = {
     "weak": "#b0126b",
     "good": "#2c5f8a",
     "overall": "#1f2a37",
+    "suppressed": "#b3aea4",
 }
 
 FONT = "DejaVu Sans"

@@ -2,9 +2,16 @@
 
 Views never change their input. Titles, axis labels and legends are written for a
 reviewer who has not read the method; every number comes from the analysis.
+
+Strings in a spec are data, never markup: Vega draws titles, axis labels, legends and
+the selector's options as text, and the site's chart loader escapes tooltip text. The
+page escapes the spec's JSON where it is inlined (``<`` ``>`` ``&`` as ``\\u`` escapes).
 """
 
 from __future__ import annotations
+
+import json
+from collections.abc import Sequence
 
 import altair as alt
 import pandas as pd
@@ -27,13 +34,22 @@ METRIC_LABELS = {
 }
 
 
-def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.LayerChart:
+def _largest_magnitude(values: pd.Series) -> float:
+    finite = pd.to_numeric(values, errors="coerce").abs().dropna()
+    return round(float(finite.max()), 3) if len(finite) and finite.max() > 0 else 1.0
+
+
+def graph_view(
+    nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str, notes: Sequence[str] = ()
+) -> alt.LayerChart:
     """The graph as a node-link drawing.
 
     ``nodes``: node, x, y, rows, region, loss, expected_loss, excess, mean_score, weak
     (the weak regions a node belongs to, "" if none). ``edges``: x, y, x2, y2.
     Node size shows rows; colour shows the metric picked in the selector; nodes of weak
-    regions are outlined.
+    regions are outlined. A node whose statistics are missing (None: too few rows to
+    show them) is drawn grey and its tooltip says "not shown". ``notes`` are added to
+    the subtitle.
     """
     use_theme()
     metric = alt.param(
@@ -54,27 +70,43 @@ def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.L
         .encode(x=base_x, y=base_y, x2="x2:Q", y2="y2:Q")
     )
     size = alt.Size("rows:Q", title="rows in node", scale=alt.Scale(range=[90, 1400]))
+    # The colour scale is symmetric about 0 for the selected metric, so that equal
+    # distances from "as promised" look equally strong on both sides.
+    extent = json.dumps({m: _largest_magnitude(nodes[m]) for m in METRIC_LABELS}, sort_keys=True)
+    shown = {
+        f"{field}_text": f"datum.{field} == null ? 'not shown' : format(datum.{field}, '.3f')"
+        for field in ("loss", "expected_loss", "mean_score")
+    }
     tooltip = [
         alt.Tooltip("node:N", title="node"),
         alt.Tooltip("rows:Q", title="rows"),
         alt.Tooltip("region:N", title="region"),
-        alt.Tooltip("loss:Q", title="observed error rate", format=".3f"),
-        alt.Tooltip("expected_loss:Q", title="error rate the scores promise", format=".3f"),
-        alt.Tooltip("mean_score:Q", title="mean score", format=".3f"),
+        alt.Tooltip("loss_text:N", title="observed error rate"),
+        alt.Tooltip("expected_loss_text:N", title="error rate the scores promise"),
+        alt.Tooltip("mean_score_text:N", title="mean score"),
         alt.Tooltip("weak:N", title="weak regions"),
     ]
     points = (
         alt.Chart(nodes)
-        .transform_calculate(value="datum[colour_by]")
-        .mark_circle(opacity=0.95, stroke=COLOURS["ink"], strokeWidth=0.4)
+        .transform_calculate(value="datum[colour_by]", **shown)
+        .mark_circle(opacity=0.95, stroke=COLOURS["ink"], strokeWidth=0.4, invalid="show")
         .encode(
             x=base_x,
             y=base_y,
             size=size,
-            color=alt.Color(
-                "value:Q",
-                title="selected metric",
-                scale=alt.Scale(range=DIVERGING, domainMid=0),
+            color=alt.when("datum.value == null")
+            .then(alt.value(COLOURS["suppressed"]))
+            .otherwise(
+                alt.Color(
+                    "value:Q",
+                    title="selected metric",
+                    scale=alt.Scale(
+                        range=DIVERGING,
+                        domainMid=0,
+                        domainMin=alt.ExprRef(f"-{extent}[colour_by]"),
+                        domainMax=alt.ExprRef(f"{extent}[colour_by]"),
+                    ),
+                )
             ),
             tooltip=tooltip,
         )
@@ -82,6 +114,7 @@ def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.L
     )
     outline = (
         alt.Chart(nodes)
+        .transform_calculate(**shown)
         .transform_filter("datum.weak != ''")
         .mark_point(
             shape="circle", filled=False, color=COLOURS["weak"], strokeWidth=2.5, strokeDash=[4, 2]
@@ -96,7 +129,7 @@ def graph_view(nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str) -> alt.L
     return alt.layer(links, points, outline).properties(
         width=640,
         height=440,
-        title=alt.Title(title, subtitle="dashed magenta rings: nodes in a weak region"),
+        title=alt.Title(title, subtitle=["dashed magenta rings: nodes in a weak region", *notes]),
     )
 
 
