@@ -102,7 +102,7 @@ def _publish(args: argparse.Namespace) -> int:
 def _site_build(args: argparse.Namespace) -> int:
     from topoaudit.report.site import build_site
 
-    out = build_site(args.archive, args.out, site_name=args.name)
+    out = build_site(args.archive, args.out, site_name=args.name, row_ids=args.include_row_ids)
     print(f"site built: {out / 'index.html'}")
     return 0
 
@@ -204,6 +204,12 @@ def _parser() -> argparse.ArgumentParser:
     q.add_argument("--archive", required=True, help="the archive folder")
     q.add_argument("--out", required=True, help="the folder for the built site")
     q.add_argument("--name", default="Model audits", help="the site's title")
+    q.add_argument(
+        "--include-row-ids",
+        action="store_true",
+        help="also list the ids of the rows in each weak region (row-level data; off by "
+        "default, when the site holds aggregates only)",
+    )
     q.set_defaults(run=_site_build)
 
     p = sub.add_parser("archive", help="check the archive of published bundles")

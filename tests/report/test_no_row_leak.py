@@ -268,3 +268,29 @@ def test_weak_nodes_past_the_limit_are_kept_largest_first(monkeypatch):
     assert len(kept["nodes"]) == 10
     weak_rows = sorted((n["rows"] for n in g["nodes"][:30]), reverse=True)
     assert sorted((n["rows"] for n in kept["nodes"]), reverse=True) == weak_rows[:10]
+
+
+def test_row_ids_appear_only_when_asked_for_and_only_in_the_row_lists(fixture_archive, tmp_path):
+    _, bundles, archive = fixture_archive
+    plain = build_site(archive, tmp_path / "plain")
+    assert not [p for p in plain.rglob("*") if re.search(r"WM-\d{6}", p.name)]
+    assert not [n for n, t in _site_texts(plain) if re.search(r"WM-\d{6}", t)]
+    site = build_site(archive, tmp_path / "with-ids", row_ids=True)
+    holders = sorted(str(n) for n, t in _site_texts(site) if re.search(r"WM-\d{6}", t))
+    assert holders == [f"meter-failure/{r}/weak-region-rows.csv" for r in ("2026.1", "2026.2")]
+    for release, bundle in bundles.items():
+        members = pd.read_parquet(bundle / "members.parquet")
+        expected = set(members["id"][members["weak_regions"].map(len) > 0])
+        listed = pd.read_csv(site / "meter-failure" / release / "weak-region-rows.csv")
+        assert set(listed["id"]) == expected and len(expected) > 0
+        page = (site / "meter-failure" / release / "index.html").read_text(encoding="utf-8")
+        assert "row-level data, opted in" in page and "data policy" in page
+
+
+def test_row_lists_cannot_carry_a_spreadsheet_formula():
+    # OWASP, "CSV Injection": cells starting with = + - @ are read as formulas.
+    from topoaudit.report.site import _csv_cell
+
+    assert _csv_cell('=HYPERLINK("x")') == '\'=HYPERLINK("x")'
+    assert _csv_cell("@SUM(A1)") == "'@SUM(A1)"
+    assert _csv_cell("WM-000001") == "WM-000001"

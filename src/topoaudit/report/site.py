@@ -123,8 +123,18 @@ def _write(path: Path, text: str) -> None:
     path.write_text(text, encoding="utf-8")
 
 
-def build_site(archive: str | Path, out: str | Path, *, site_name: str = "Model audits") -> Path:
-    """Build the static site of ``archive`` into ``out`` (replaced only when complete)."""
+def build_site(
+    archive: str | Path,
+    out: str | Path,
+    *,
+    site_name: str = "Model audits",
+    row_ids: bool = False,
+) -> Path:
+    """Build the static site of ``archive`` into ``out`` (replaced only when complete).
+
+    The site holds aggregates only. With ``row_ids`` (an explicit opt-in) each release page
+    also links a CSV of the ids of the rows in its weak regions, under a caution.
+    """
     archive, out = Path(archive), Path(out)
     if (
         not isinstance(site_name, str)
@@ -143,13 +153,15 @@ def build_site(archive: str | Path, out: str | Path, *, site_name: str = "Model 
     work = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
     try:
         with locked(work / ".lock"):
-            _build_into(work, archive, out, template, site_name)
+            _build_into(work, archive, out, template, site_name, row_ids)
     finally:
         shutil.rmtree(work, ignore_errors=True)
     return out
 
 
-def _build_into(work: Path, archive: Path, out: Path, template: Path, site_name: str) -> None:
+def _build_into(
+    work: Path, archive: Path, out: Path, template: Path, site_name: str, row_ids: bool
+) -> None:
     """Write the mkdocs project into ``work``, build it, and swap it in as ``out``."""
     import vl_convert as vlc
     from mkdocs.commands.build import build
@@ -170,6 +182,8 @@ def _build_into(work: Path, archive: Path, out: Path, template: Path, site_name:
         for i, r in enumerate(rels):
             page_dir = docs / model / r["release"]
             text = (r["folder"] / "page.md").read_text(encoding="utf-8")
+            if row_ids:
+                text += _row_list(r["folder"], page_dir)
             _write(page_dir / "index.md", text)
             shutil.copytree(r["folder"] / "charts", page_dir / "charts")
             section.append({f"Release {r['release']}": f"{model}/{r['release']}/index.md"})
@@ -225,6 +239,41 @@ def _build_into(work: Path, archive: Path, out: Path, template: Path, site_name:
     else:
         os.rename(built, out)
     fsync_path(out.parent, directory=True)
+
+
+ROW_LIST = "weak-region-rows.csv"
+
+
+def _csv_cell(value: object) -> str:
+    """A CSV cell that a spreadsheet will not run as a formula (OWASP, CSV injection)."""
+    text = str(value)
+    if text[:1] in ("=", "+", "-", "@", "\t", "\r"):
+        text = "'" + text
+    return text
+
+
+def _row_list(bundle: Path, page_dir: Path) -> str:
+    """Write the ids of the weak regions' rows beside the page; the section that links it."""
+    import pandas as pd
+
+    members = pd.read_parquet(bundle / "members.parquet", columns=["id", "weak_regions"])
+    rows = members[members["weak_regions"].map(len) > 0]
+    table = pd.DataFrame(
+        {
+            "id": rows["id"].map(_csv_cell),
+            "weak_regions": rows["weak_regions"].map(lambda w: " ".join(map(str, w))),
+        }
+    )
+    page_dir.mkdir(parents=True, exist_ok=True)
+    table.to_csv(page_dir / ROW_LIST, index=False, lineterminator="\n")
+    return (
+        "\n## Rows of the weak regions (row-level data, opted in)\n\n"
+        f"This site was built with row ids included: [{ROW_LIST}]({ROW_LIST}) lists the ids "
+        f"of the {count(len(table))} rows that lie in a weak region of this release. Ids are "
+        "row-level data and may identify people or households: share this site only where "
+        "the organisation's data policy allows it. Being in a weak region says where the "
+        "model was worse, not that a row was handled wrongly or why.\n"
+    )
 
 
 def _nav_yaml(items: list[Any], depth: int) -> str:
