@@ -213,7 +213,7 @@ def test_cli_archive_verify_exit_status(archive, capsys):
     (archive / MODEL / "2026.1" / "analysis.json").write_text("{}")
     assert main(["archive", "verify", str(archive)]) == 1
     out = capsys.readouterr().out
-    assert f"changed    {MODEL}/2026.1/analysis.json" in out and "1 problems found" in out
+    assert f"changed    {MODEL}/2026.1/analysis.json" in out and "1 problem found" in out
     assert main(["archive", "verify", str(archive / "nope")]) == 2
     assert "no such archive folder" in capsys.readouterr().err
 

@@ -282,11 +282,12 @@ def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> l
 def refuse_changed(folder: Path) -> None:
     problems = bundle_findings(folder)
     if problems:
-        listed = "; ".join(str(p) for p in problems[:5])
+        listed = "; ".join(f"{p.path} {p.kind}" for p in problems[:5])
         more = f" and {len(problems) - 5} more" if len(problems) > 5 else ""
         msg = (
             f"{folder}: the bundle does not match its checksums.json ({listed}{more}); it "
-            "changed after it was written. Audit again, or restore the original files."
+            "changed after it was written. Audit again, or restore the original files "
+            "(topoaudit archive verify lists every difference)."
         )
         raise ArchiveError(msg)
 
@@ -524,7 +525,9 @@ class Verification:
         lines += [f"  {f}" for f in self.findings]
         n = len(self.problems)
         lines.append(
-            "no file changed, went missing or was added" if n == 0 else f"{n} problems found"
+            "no file changed, went missing or was added"
+            if n == 0
+            else f"{n} problem{'s' if n != 1 else ''} found"
         )
         return "\n".join(lines) + "\n"
 
