@@ -112,3 +112,20 @@ def test_comparison_uses_the_exact_mcnemar_test_per_region():
     assert r2.change == pytest.approx((b - c) / 200)
     assert r2.low < r2.change < r2.high
     assert sum(r.rows for r in comp.regions) == n
+
+
+def test_a_split_whose_two_sides_are_both_inside_gives_one_rule():
+    # Both children of the x1 split predict "inside" (100% and 70% positive): the rule
+    # must read "x0 > 0.5", not one copy per side of x1 (common practice, no source).
+    from sklearn.tree import DecisionTreeClassifier
+
+    from topoaudit.audit.describe import _rule_text
+
+    x0 = np.repeat([0.0, 1.0, 1.0], [100, 50, 50])
+    x1 = np.tile([0.0, 1.0], 100)
+    x1[100:150], x1[150:] = 1.0, 0.0
+    y = (x0 > 0.5).astype(int)
+    y[150:165] = 0  # 30% of the x1 = 0 side outside
+    tree = DecisionTreeClassifier(max_depth=2, random_state=0).fit(np.c_[x0, x1], y)
+    assert tree.get_depth() == 2  # the redundant split exists
+    assert _rule_text(tree, ["x0", "x1"]) == ["x0 > 0.5"]

@@ -65,10 +65,17 @@ def _rule_text(tree: DecisionTreeClassifier, names: list[str]) -> list[str]:
     t = tree.tree_
     paths: list[str] = []
 
+    def inside(node: int) -> bool:  # every leaf below predicts "in the region"
+        left, right = t.children_left[node], t.children_right[node]
+        if left == right:
+            return bool(np.argmax(t.value[node][0]) == 1)
+        return inside(left) and inside(right)
+
     def walk(node: int, conds: list[str]) -> None:
+        if inside(node):  # one condition list, not one per leaf of a split that changes nothing
+            paths.append(" and ".join(conds) if conds else "all rows")
+            return
         if t.children_left[node] == t.children_right[node]:
-            if np.argmax(t.value[node][0]) == 1:
-                paths.append(" and ".join(conds) if conds else "all rows")
             return
         name, thr = names[t.feature[node]], t.threshold[node]
         walk(t.children_left[node], [*conds, f"{name} <= {thr:.4g}"])
