@@ -17,7 +17,14 @@ import numpy as np
 
 from topoaudit.errors import ParameterError
 
-__all__ = ["NONE", "Choice", "Interval", "Kind", "check_params", "random_generator"]
+__all__ = [
+    "NONE",
+    "Choice",
+    "Interval",
+    "Kind",
+    "check_params",
+    "random_generator",
+]
 
 
 @dataclass(frozen=True)
@@ -40,8 +47,8 @@ class Interval:
                 return False
         elif not isinstance(value, numbers.Real):
             return False
-        if isinstance(value, float) and not np.isfinite(value):
-            return False
+        if not isinstance(value, numbers.Integral) and not np.isfinite(float(value)):
+            return False  # NaN and infinities of every float type (numpy's float32 too)
         left = self.closed in ("both", "left")
         right = self.closed in ("both", "right")
         if self.low is not None and (value < self.low or (value == self.low and not left)):
@@ -51,9 +58,14 @@ class Interval:
         )
 
     def describe(self) -> str:
-        kind = "an int" if self.type in (int, numbers.Integral) else "a number"
-        lo = "-inf" if self.low is None else f"{self.low:g}"
-        hi = "inf" if self.high is None else f"{self.high:g}"
+        integral = self.type in (int, numbers.Integral)
+        kind = "an int" if integral else "a number"
+
+        def bound(v: float) -> str:  # 4294967295, not 4.29497e+09
+            return str(int(v)) if integral or float(v).is_integer() else f"{v:g}"
+
+        lo = "-inf" if self.low is None else bound(self.low)
+        hi = "inf" if self.high is None else bound(self.high)
         lb = "[" if self.closed in ("both", "left") and self.low is not None else "("
         rb = "]" if self.closed in ("both", "right") and self.high is not None else ")"
         return f"{kind} in the range {lb}{lo}, {hi}{rb}"

@@ -18,6 +18,7 @@ suggests the closest known one. A minimal file::
 from __future__ import annotations
 
 import dataclasses
+import math
 import re
 import tomllib
 from collections.abc import Mapping
@@ -26,7 +27,13 @@ from pathlib import Path
 from typing import Any
 
 from topoaudit._validation import Choice, Interval, Kind
-from topoaudit.errors import ConfigError, closest_names
+from topoaudit.errors import ConfigError, LimitError, closest_names
+from topoaudit.limits import (
+    MAX_CONFIG_BYTES,
+    MAX_INTERVALS,
+    MAX_RELEASES,
+    MAX_STABILITY_OFFSETS,
+)
 
 __all__ = [
     "AuditSettings",
@@ -43,15 +50,42 @@ _NAME = Kind(
     lambda v: isinstance(v, str) and re.fullmatch(NAME_PATTERN, v) is not None and ".." not in v,
     f"a name matching {NAME_PATTERN} (letters, digits, '.', '-', '_'; no '..')",
 )
-_STR = Kind(lambda v: isinstance(v, str) and v != "", "a non-empty string")
+_STR = Kind(
+    lambda v: isinstance(v, str) and v != "" and "\x00" not in v,
+    "a non-empty string (without NUL characters)",
+)
 _STRS = Kind(
-    lambda v: isinstance(v, list) and all(isinstance(s, str) and s for s in v),
+    lambda v: isinstance(v, list) and all(_STR.accepts(s) for s in v),
     "a list of column names",
 )
 _BOOL = Kind(lambda v: isinstance(v, bool), "true or false")
 _CATEGORICAL = Kind(
-    lambda v: isinstance(v, dict) and all(e in ("onehot", "ordinal") for e in v.values()),
+    lambda v: (
+        isinstance(v, dict)
+        and all(_STR.accepts(c) for c in v)
+        and all(isinstance(e, str) and e in ("onehot", "ordinal") for e in v.values())
+    ),
     'a table of column = "onehot" or "ordinal"',
+)
+_OFFSETS = Kind(
+    lambda v: (
+        isinstance(v, list)
+        and len(v) <= MAX_STABILITY_OFFSETS
+        and all(isinstance(i, int) and not isinstance(i, bool) for i in v)
+        and all(abs(i) < MAX_INTERVALS for i in v)
+    ),
+    f"a list of at most {MAX_STABILITY_OFFSETS} interval-count offsets (ints between "
+    f"-{MAX_INTERVALS - 1} and {MAX_INTERVALS - 1})",
+)
+_OVERLAP_OFFSETS = Kind(
+    lambda v: (
+        isinstance(v, list)
+        and len(v) <= MAX_STABILITY_OFFSETS
+        and all(isinstance(g, int | float) and not isinstance(g, bool) for g in v)
+        and all(math.isfinite(g) and -1 < g < 1 for g in v)
+    ),
+    f"a list of at most {MAX_STABILITY_OFFSETS} overlap offsets (finite numbers strictly "
+    "between -1 and 1)",
 )
 
 
@@ -113,7 +147,7 @@ class GraphSettings:
         "filter": [Choice(("pca", "eccentricity", "density", "knn_distance", "score"))],
         "components": [Interval(int, 1, 2)],
         "cover": [Choice(("uniform", "balanced"))],
-        "n_intervals": [Interval(int, 1, 1000)],
+        "n_intervals": [Interval(int, 1, MAX_INTERVALS)],
         "overlap": [Interval(float, 0.0, 1.0, closed="left")],
         "clusterer": [Choice(("single_linkage", "dbscan", "kmedoids", "hdbscan"))],
         "standardize": [_BOOL],
@@ -140,21 +174,11 @@ class AuditSettings:
         "fdr": [Interval(float, 0.0, 1.0, closed="neither")],
         "min_rows": [Interval(int, 1, None)],
         "node_rows": [Interval(int, 10, None)],
-        "search_intervals": [Interval(int, 1, 1000)],
+        "search_intervals": [Interval(int, 1, MAX_INTERVALS)],
         "local_model": [Choice(("logistic", "tree", "boosting", "ridge"))],
         "folds": [Interval(int, 2, 50)],
-        "stability_intervals": [
-            Kind(
-                lambda v: isinstance(v, list) and all(isinstance(i, int) for i in v),
-                "a list of interval-count offsets",
-            )
-        ],
-        "stability_overlaps": [
-            Kind(
-                lambda v: isinstance(v, list) and all(isinstance(i, int | float) for i in v),
-                "a list of overlap offsets",
-            )
-        ],
+        "stability_intervals": [_OFFSETS],
+        "stability_overlaps": [_OVERLAP_OFFSETS],
         "bootstrap_resamples": [Interval(int, 0, 100)],
         "match_jaccard": [Interval(float, 0.0, 1.0, closed="right")],
     }
@@ -209,6 +233,12 @@ def _fail(where: str, msg: str) -> ConfigError:
     return ConfigError(f"{where}: {msg}")
 
 
+def _short(value: Any, limit: int = 200) -> str:
+    """``repr(value)``, cut to ``limit`` characters so a huge value keeps the message short."""
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 5] + " ...)"
+
+
 def _unknown(where: str, key: str, known: tuple[str, ...] | list[str]) -> ConfigError:
     near = closest_names(key, known, n=1)
     hint = f" Did you mean {near[0]!r}?" if near else ""
@@ -220,12 +250,12 @@ def _check_value(where: str, key: str, value: Any, constraints: list[Any]) -> No
     if any(c.accepts(value) for c in constraints):
         return
     allowed = " or ".join(c.describe() for c in constraints)
-    raise _fail(where, f"key {key!r} must be {allowed}; got {value!r}.")
+    raise _fail(where, f"key {key!r} must be {allowed}; got {_short(value)}.")
 
 
 def _section(where: str, prefix: str, cls: type, table: Any) -> Any:
-    if not isinstance(table, dict):
-        raise _fail(where, f"{prefix!r} must be a table; got {table!r}.")
+    if not isinstance(table, Mapping):
+        raise _fail(where, f"{prefix!r} must be a table; got {_short(table)}.")
     known = [f.name for f in dataclasses.fields(cls)]
     values: dict[str, Any] = {}
     for key, value in table.items():
@@ -245,9 +275,11 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
     """Build a :class:`Config` from a parsed TOML document; relative data paths are read
     relative to the config file's folder."""
     where = str(source)
+    if not isinstance(doc, Mapping):
+        raise _fail(where, f"a config is a table of keys; got {_short(doc)}.")
     for key in doc:
         if key not in _TOP_KEYS:
-            raise _unknown(where, key, _TOP_KEYS)
+            raise _unknown(where, str(key), _TOP_KEYS)
     for key, constraints in _TOP.items():
         if key in doc:
             _check_value(where, key, doc[key], constraints)
@@ -256,12 +288,29 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
     if "data" not in doc:
         raise _fail(where, "the required table [data] is missing.")
     data = _section(where, "data", DataSettings, doc["data"])
+    for key in ("features", "exclude"):
+        names = getattr(data, key) or ()
+        dup = sorted({c for c in names if names.count(c) > 1})
+        if dup:
+            raise _fail(where, f"'data.{key}' names {dup} more than once; list each column once.")
     base = Path(source).parent if source != "<config>" else Path(".")
     path = Path(data.path)
     data = dataclasses.replace(data, path=path if path.is_absolute() else base / path)
+    if data.id == data.target:
+        raise _fail(
+            where,
+            f"'data.id' and 'data.target' both name the column {data.id!r}; the id and the "
+            "target must be two different columns.",
+        )
     releases_doc = doc.get("release")
     if not isinstance(releases_doc, list) or not releases_doc:
         raise _fail(where, "at least one [[release]] table (name, score) is needed.")
+    if len(releases_doc) > MAX_RELEASES:
+        msg = (
+            f"{where}: {len(releases_doc)} [[release]] tables are listed; one config holds at "
+            f"most {MAX_RELEASES} releases (MAX_RELEASES)."
+        )
+        raise LimitError(msg)
     releases = tuple(
         _section(where, f"release[{i}]", Release, r) for i, r in enumerate(releases_doc)
     )
@@ -269,6 +318,14 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
     if len(set(names)) != len(names):
         dup = sorted({n for n in names if names.count(n) > 1})
         raise _fail(where, f"release names must be unique; {dup} appear more than once.")
+    for i, r in enumerate(releases):
+        role = {data.id: "data.id", data.target: "data.target"}.get(r.score)
+        if role is not None:
+            raise _fail(
+                where,
+                f"'release[{i}].score' and '{role}' both name the column {r.score!r}; the "
+                "scores of a release need a column of their own.",
+            )
     extra = {
         k: _section(where, k, cls, doc[k])
         for k, cls in _SECTIONS.items()
@@ -285,16 +342,38 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
 
 
 def load_config(path: str | Path) -> Config:
-    """Read and check the TOML config at ``path``."""
+    """Read and check the TOML config at ``path`` (UTF-8, at most
+    :data:`~topoaudit.limits.MAX_CONFIG_BYTES` bytes)."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open("rb") as fh:
+            raw = fh.read(MAX_CONFIG_BYTES + 1)  # never more, whatever the file's size
     except FileNotFoundError:
         raise ConfigError(f"{path}: no such config file.") from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, ValueError) as exc:  # ValueError: a NUL character in the path
         raise ConfigError(f"{path}: cannot be read ({exc}).") from exc
+    if len(raw) > MAX_CONFIG_BYTES:
+        msg = (
+            f"{path}: the config file is larger than {MAX_CONFIG_BYTES} bytes "
+            "(MAX_CONFIG_BYTES); an audit config is a few hundred bytes of TOML."
+        )
+        raise LimitError(msg)
+    try:
+        text = raw.decode("utf-8-sig")  # a byte-order mark, as some editors write, is read
+    except UnicodeDecodeError as exc:
+        msg = (
+            f"{path}: cannot be read (not UTF-8: byte {exc.start} is "
+            f"{raw[exc.start : exc.start + 1]!r}); save the config as UTF-8 text."
+        )
+        raise ConfigError(msg) from exc
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: not valid TOML ({exc}).") from exc
+    except RecursionError as exc:
+        msg = (
+            f"{path}: not valid TOML here (arrays or inline tables nested too deeply to read); "
+            "an audit config nests no deeper than a table of tables."
+        )
+        raise ConfigError(msg) from exc
     return parse_config(doc, source=path)

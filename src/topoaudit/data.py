@@ -6,6 +6,7 @@ what would be accepted.
 
 from __future__ import annotations
 
+import csv
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -15,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 from topoaudit.config import Config
-from topoaudit.errors import DataError, closest_names
+from topoaudit.errors import DataError, LimitError, TopoauditError, closest_names
+from topoaudit.limits import MAX_CATEGORY_LEVELS, MAX_FEATURES, MAX_MAGNITUDE, MAX_ROWS
 from topoaudit.mapper._input import describe_rows
 
 __all__ = ["Dataset", "fingerprint", "load_dataset", "prepare_dataset", "read_table"]
@@ -60,29 +62,92 @@ class Dataset:
         return int(self.X.shape[0])
 
 
+_CSV = (".csv", ".txt")
+_PARQUET = (".parquet", ".pq")
+# what pandas and pyarrow raise for a file they cannot parse
+_READ_ERRORS = (ValueError, OSError, OverflowError, csv.Error, pd.errors.ParserError)
+
+
+def _short(value: Any, limit: int = 60) -> str:
+    """``repr(value)``, cut to ``limit`` characters so that junk keeps a message short."""
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 5] + " ...'"
+
+
+def _too_many_rows(path: Path, n: int | None = None) -> LimitError:
+    asked = f"{n} rows" if n is not None else f"more than {MAX_ROWS} rows"
+    return LimitError(
+        f"{path}: the file has {asked}; a validation table holds at most {MAX_ROWS} rows "
+        "(MAX_ROWS): audit a sample of the rows."
+    )
+
+
+def _read_csv(path: Path) -> pd.DataFrame:
+    # The header as written (read_csv renames a repeated name "x" to "x.1" and an empty one
+    # to "Unnamed: 3"), then at most MAX_ROWS + 1 rows, so a huge file is refused after
+    # reading no more than the limit. low_memory=False infers one type per column from all
+    # its rows, not one per chunk.
+    header = pd.read_csv(path, header=None, nrows=1, dtype=str, keep_default_na=False)
+    written = [str(c) for c in header.iloc[0].tolist()]
+    frame = pd.read_csv(path, keep_default_na=True, nrows=MAX_ROWS + 1, low_memory=False)
+    if frame.shape[0] > MAX_ROWS:
+        raise _too_many_rows(path)
+    if not isinstance(frame.index, pd.RangeIndex) or frame.shape[1] != len(written):
+        # rows with one field more than the header: pandas would take the first as an index
+        msg = (
+            f"{path}: some rows have more fields than the header's {len(written)} names; "
+            "every row needs exactly one field per column (check for a trailing separator)."
+        )
+        raise DataError(msg)
+    empty = [i + 1 for i, c in enumerate(written) if not c.strip()]
+    if empty:
+        msg = (
+            f"{path}: the header gives no name to column{'s' if len(empty) > 1 else ''} "
+            f"{', '.join(map(str, empty))} (counting from 1); every column needs a name."
+        )
+        raise DataError(msg)
+    dup = sorted({c for c in written if written.count(c) > 1})
+    if dup:
+        msg = f"{path}: duplicated column names {dup}; each column needs a unique name."
+        raise DataError(msg)
+    frame.columns = written
+    return frame
+
+
+def _read_parquet(path: Path) -> pd.DataFrame:
+    import pyarrow.parquet as pq
+
+    n_rows = pq.ParquetFile(path).metadata.num_rows  # from the footer, before any row
+    if n_rows > MAX_ROWS:
+        raise _too_many_rows(path, n_rows)
+    return pd.read_parquet(path)
+
+
 def read_table(path: Path) -> pd.DataFrame:
-    """Read a CSV or Parquet file; refuse anything else with the accepted suffixes."""
+    """Read a CSV or Parquet file; refuse anything else with the accepted suffixes.
+
+    A CSV file needs a header row with one unique, non-empty name per column, and at most
+    one field per column in every row; a file of more than
+    :data:`~topoaudit.limits.MAX_ROWS` rows is refused after reading that many.
+    """
+    path = Path(path)
     suffix = path.suffix.lower()
-    if not path.exists():
-        raise DataError(f"{path}: no such data file.")
     try:
-        if suffix in (".csv", ".txt"):
-            frame = pd.read_csv(path, keep_default_na=True)
-            # read_csv renames a repeated header ("x", "x.1"); read the names as written.
-            header = pd.read_csv(path, header=None, nrows=1, dtype=str, keep_default_na=False)
-            written = header.iloc[0].tolist()
-        elif suffix in (".parquet", ".pq"):
-            return pd.read_parquet(path)
-    except (ValueError, OSError, pd.errors.ParserError, UnicodeDecodeError) as exc:
-        raise DataError(f"{path}: cannot be read as {suffix[1:].upper()} ({exc}).") from exc
-    if suffix in (".csv", ".txt"):
-        dup = sorted({c for c in written if written.count(c) > 1})
-        if dup:
-            msg = f"{path}: duplicated column names {dup}; each column needs a unique name."
-            raise DataError(msg)
-        return frame
-    msg = f"{path}: unknown data file type {suffix!r}; accepted are .csv and .parquet."
-    raise DataError(msg)
+        exists = path.exists()
+    except (OSError, ValueError) as exc:  # a name too long for the file system, a NUL byte
+        raise DataError(f"{path}: cannot be opened ({exc}).") from exc
+    if not exists:
+        raise DataError(f"{path}: no such data file.")
+    if suffix not in _CSV + _PARQUET:
+        msg = f"{path}: unknown data file type {suffix!r}; accepted are .csv and .parquet."
+        raise DataError(msg)
+    try:
+        return _read_csv(path) if suffix in _CSV else _read_parquet(path)
+    except TopoauditError:
+        raise
+    except _READ_ERRORS as exc:
+        what = str(exc).strip() or type(exc).__name__
+        raise DataError(f"{path}: cannot be read as {suffix[1:].upper()} ({what}).") from exc
 
 
 def fingerprint(frame: pd.DataFrame) -> str:
@@ -111,6 +176,13 @@ def _missing_column(where: str, col: str, role: str, columns: list[str]) -> Data
     return DataError(f"{where}: the {role} column {col!r} is not in the file.{hint}")
 
 
+def _too_many_features(where: str, n: int, when: str) -> LimitError:
+    return LimitError(
+        f"{where}: {n} feature columns{when}; at most {MAX_FEATURES} are accepted "
+        "(MAX_FEATURES): name fewer in data.features or list more in data.exclude."
+    )
+
+
 def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<frame>") -> Dataset:
     """Check and encode ``frame`` as the config describes."""
     d = config.data
@@ -119,6 +191,8 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
     if len(set(columns)) != len(columns):
         dup = sorted({c for c in columns if columns.count(c) > 1})
         raise DataError(f"{where}: duplicated column names {dup}; each column needs a unique name.")
+    if frame.shape[0] > MAX_ROWS:
+        raise _too_many_rows(Path(where), frame.shape[0])
     frame = frame.copy()
     frame.columns = columns
     if frame.shape[0] == 0:
@@ -143,25 +217,49 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
         features = [c for c in columns if c not in reserved and c not in d.exclude]
     if not features:
         raise DataError(f"{where}: no feature columns are left; name them in data.features.")
+    if len(features) > MAX_FEATURES:
+        raise _too_many_features(where, len(features), "")
 
-    used = [d.id, d.target, *[r.score for r in config.releases], *features]
+    # one column may serve several releases; select each once
+    used = list(dict.fromkeys([d.id, d.target, *[r.score for r in config.releases], *features]))
     sub = frame[used]
-    numeric_needed = [d.target, *[r.score for r in config.releases]] + [
-        c for c in features if c not in d.categorical
-    ]
+    numeric_needed = list(
+        dict.fromkeys(
+            [d.target, *[r.score for r in config.releases]]
+            + [c for c in features if c not in d.categorical]
+        )
+    )
+    hint = " (declare it in data.categorical to encode it)"
     for col in numeric_needed:
         s = sub[col]
-        if not pd.api.types.is_numeric_dtype(s) or pd.api.types.is_bool_dtype(s):
-            bad = pd.to_numeric(s, errors="coerce").isna() & s.notna()
-            rows = np.flatnonzero(bad.to_numpy())
-            example = repr(s.iloc[rows[0]]) if rows.size else repr(s.dtype)
+        if pd.api.types.is_bool_dtype(s):
             msg = (
-                f"{where}: column {col!r} must be numeric; {describe_rows(rows)} hold "
-                f"non-numbers such as {example}"
-                + (" (declare it in data.categorical to encode it)." if col in features else ".")
+                f"{where}: column {col!r} must be numeric; it holds true/false values: write "
+                f"them as 1 and 0{hint if col in features else ''}."
             )
             raise DataError(msg)
-    col_bad = {c: ~np.isfinite(sub[c].to_numpy(dtype=float)) for c in numeric_needed}
+        if not pd.api.types.is_numeric_dtype(s):
+            if not (pd.api.types.is_object_dtype(s) or pd.api.types.is_string_dtype(s)):
+                msg = (  # dates, durations, categories...
+                    f"{where}: column {col!r} must be numeric; it has type {s.dtype}"
+                    + (f"{hint}." if col in features else ".")
+                )
+                raise DataError(msg)
+            numbers = pd.to_numeric(s, errors="coerce")
+            bad = numbers.isna() & s.notna()
+            rows = np.flatnonzero(bad.to_numpy())
+            if not rows.size:  # numbers kept as text, such as integers too long for 64 bits
+                sub[col] = numbers.astype(np.float64)
+                continue
+            msg = (
+                f"{where}: column {col!r} must be numeric; {describe_rows(rows)} hold "
+                f"non-numbers such as {_short(s.iloc[rows[0]])}"
+                + (f"{hint}." if col in features else ".")
+            )
+            raise DataError(msg)
+    col_bad = {
+        c: ~np.isfinite(sub[c].to_numpy(dtype=float, na_value=np.nan)) for c in numeric_needed
+    }
     col_bad.update({c: sub[c].isna().to_numpy() for c in (d.id, *d.categorical) if c in used})
     bad_mask = np.logical_or.reduce(list(col_bad.values()))
     n_dropped = 0
@@ -181,6 +279,18 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
         sub = sub.loc[~bad_mask].reset_index(drop=True)
         if sub.shape[0] == 0:
             raise DataError(f"{where}: every row has a missing value; none are left.")
+    for col in numeric_needed:
+        values = sub[col].to_numpy(dtype=float)
+        huge = np.abs(values) > MAX_MAGNITUDE
+        if huge.any():
+            rows = np.flatnonzero(huge)
+            msg = (
+                f"{where}: column {col!r} holds values of magnitude above {MAX_MAGNITUDE:g} in "
+                f"{describe_rows(kept[rows])}, such as {float(values[rows[0]])!r}; distances "
+                "and means of such values overflow: replace them (often they stand for a "
+                "missing value) or rescale the column."
+            )
+            raise DataError(msg)
 
     ids = sub[d.id].astype(str).to_numpy()
     dup_ids = pd.Series(ids).duplicated(keep=False).to_numpy()
@@ -220,6 +330,27 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
                 )
         scores[r.name] = s
 
+    # the levels of each categorical column, and the encoded width, before any encoding
+    levels: dict[str, list[str]] = {}
+    width = 0
+    for col in features:
+        kind = d.categorical.get(col)
+        if kind is None:
+            width += 1
+            continue
+        cats = sorted(sub[col].astype(str).unique().tolist())
+        if kind == "onehot" and len(cats) > MAX_CATEGORY_LEVELS:
+            msg = (
+                f"{where}: the one-hot column {col!r} has {len(cats)} distinct values; a one-hot "
+                f"column may have at most {MAX_CATEGORY_LEVELS} (MAX_CATEGORY_LEVELS): encode "
+                'it as "ordinal", group rare values, or leave it out.'
+            )
+            raise LimitError(msg)
+        levels[col] = cats
+        width += len(cats) if kind == "onehot" else 1
+    if width > MAX_FEATURES:
+        raise _too_many_features(where, width, " after one-hot encoding")
+
     blocks, names, encoding = [], [], {}
     for col in features:
         kind = d.categorical.get(col)
@@ -228,7 +359,7 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
             blocks.append(values.to_numpy(dtype=float).reshape(-1, 1))
             names.append(col)
             continue
-        cats = sorted(values.astype(str).unique().tolist())
+        cats = levels[col]
         encoding[col] = {"encoding": kind, "categories": cats}
         codes = pd.Categorical(values.astype(str), categories=cats).codes.astype(float)
         if kind == "ordinal":

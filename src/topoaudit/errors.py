@@ -17,6 +17,7 @@ __all__ = [
     "DataError",
     "FilterError",
     "LimitError",
+    "LimitParameterError",
     "ParameterError",
     "TopoauditError",
     "UnknownNameError",
@@ -50,6 +51,10 @@ class ConfigError(TopoauditError, ValueError):
 
 class LimitError(TopoauditError, ValueError):
     """A request exceeds one of the documented size limits."""
+
+
+class LimitParameterError(LimitError, ParameterError):
+    """A parameter asks for more than a documented limit allows (both kinds of error)."""
 
 
 def closest_names(name: str, choices: Iterable[str], n: int = 3) -> list[str]:

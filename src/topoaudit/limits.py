@@ -14,9 +14,12 @@ __all__ = [
     "MAX_FEATURES",
     "MAX_GRAPH_NODES",
     "MAX_INTERVALS",
+    "MAX_MAGNITUDE",
+    "MAX_MEMBERSHIPS",
     "MAX_NODES_DRAWN",
     "MAX_RELEASES",
     "MAX_ROWS",
+    "MAX_STABILITY_OFFSETS",
 ]
 
 #: Rows of a validation table (after reading, before dropping missing values).
@@ -25,8 +28,16 @@ MAX_ROWS = 2_000_000
 MAX_FEATURES = 1_000
 #: Distinct values of one one-hot encoded categorical column.
 MAX_CATEGORY_LEVELS = 200
+#: Largest magnitude accepted in the data and in filter values. Squared distances of values
+#: up to 1e150 apart, summed over a thousand columns, and sums of millions of them stay
+#: far below the largest float (about 1.8e308); larger values overflow to infinity.
+MAX_MAGNITUDE = 1e150
 #: Intervals of a cover, per filter dimension.
 MAX_INTERVALS = 1_000
+#: Row memberships of one cover (a row in k elements counts k times): 25 per row of the
+#: largest table, what a 2-D cover with an overlap of 0.75 reaches. Forming the elements
+#: takes about 60 bytes per membership at its peak (measured), so at most about 3 GB.
+MAX_MEMBERSHIPS = 25 * MAX_ROWS
 #: Nodes of one Mapper graph.
 MAX_GRAPH_NODES = 200_000
 #: Nodes drawn in the graph view of a page; a larger graph is drawn in part, and says so.
@@ -35,3 +46,6 @@ MAX_NODES_DRAWN = 2_000
 MAX_CONFIG_BYTES = 1_000_000
 #: Releases listed in one config.
 MAX_RELEASES = 100
+#: Entries of each of the config's stability offset lists (the grid reruns the graph
+#: search once per pair, so 10 x 10 offsets already mean 100 reruns).
+MAX_STABILITY_OFFSETS = 10

@@ -7,8 +7,9 @@ from typing import Any
 import numpy as np
 
 from topoaudit.errors import DataError
+from topoaudit.limits import MAX_MAGNITUDE
 
-__all__ = ["as_matrix", "describe_rows"]
+__all__ = ["MAX_MAGNITUDE", "as_matrix", "describe_rows"]
 
 
 def describe_rows(rows: np.ndarray, limit: int = 5) -> str:
@@ -82,7 +83,8 @@ def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
         msg = f"{name} has no columns; at least one numeric feature is needed."
         raise DataError(msg)
     if arr.shape[0] < min_rows:
-        msg = f"{name} has {arr.shape[0]} rows; at least {min_rows} are needed."
+        rows = f"{arr.shape[0]} row{'s' if arr.shape[0] != 1 else ''}"
+        msg = f"{name} has {rows}; at least {min_rows} are needed."
         raise DataError(msg)
     arr = np.ascontiguousarray(arr, dtype=np.float64)
     finite = np.isfinite(arr)
@@ -93,6 +95,17 @@ def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
         msg = (
             f"{name} has NaN or infinite values in {describe_rows(bad_rows)} "
             f"(column{'s' if bad_cols.size > 1 else ''} {where}); only finite values are accepted."
+        )
+        raise DataError(msg)
+    huge = np.abs(arr) > MAX_MAGNITUDE
+    if huge.any():
+        bad_rows = np.flatnonzero(huge.any(axis=1))
+        bad_cols = np.flatnonzero(huge.any(axis=0))
+        where = ", ".join(repr(columns[c]) if columns else str(int(c)) for c in bad_cols[:5])
+        msg = (
+            f"{name} has values of magnitude above {MAX_MAGNITUDE:g} in "
+            f"{describe_rows(bad_rows)} (column{'s' if bad_cols.size > 1 else ''} {where}); "
+            "distances between such values overflow: rescale the columns."
         )
         raise DataError(msg)
     return arr

@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 from scipy.cluster.hierarchy import fcluster, linkage
+from scipy.spatial.distance import pdist
 from sklearn.base import clone
 from sklearn.cluster import DBSCAN, HDBSCAN
 from sklearn.metrics import silhouette_score
@@ -44,7 +45,8 @@ __all__ = [
     "relabel",
 ]
 
-_SEED = [Interval(int, 0, None), NONE]
+_SEED = [Interval(int, 0, None), NONE]  # numpy takes any seed
+_SKLEARN_SEED = [Interval(int, 0, 2**32 - 1), NONE]  # the seeds scikit-learn takes
 
 
 def relabel(labels: np.ndarray) -> np.ndarray:
@@ -126,6 +128,7 @@ class SingleLinkage(Clusterer):
     quantile : float, default=0.9
     factor : float, default=2.0
     n_bins : int, default=10
+        Between 2 and 10 000.
     min_cluster_size : int, default=1
     max_sample : int, default=1000
         Larger elements are clustered on a seeded sample of this many rows; every other
@@ -151,7 +154,7 @@ class SingleLinkage(Clusterer):
         "k": [Interval(int, 1, None)],
         "quantile": [Interval(float, 0, 1, closed="right")],
         "factor": [Interval(float, 0, None, closed="neither")],
-        "n_bins": [Interval(int, 2, None)],
+        "n_bins": [Interval(int, 2, 10_000)],
         "min_cluster_size": [Interval(int, 1, None)],
         "max_sample": [Interval(int, 2, None)],
         "random_state": _SEED,
@@ -196,7 +199,9 @@ class SingleLinkage(Clusterer):
             return np.zeros(n, dtype=np.int64)
         sample = _sample(n, self.max_sample, self.random_state)
         S = X if sample is None else X[sample]
-        Z = linkage(S, method="single")
+        # condensed distances, not the rows: a square block of rows that happens to look
+        # like a distance matrix (a symmetric 0/1 grid) would otherwise be taken for one
+        Z = linkage(pdist(S), method="single")
         cut = self._threshold(S, Z[:, 2])
         if cut is None:
             labels_s = np.zeros(S.shape[0], dtype=np.int64)
@@ -301,7 +306,7 @@ class SilhouetteKMedoids(Clusterer):
         "max_clusters": [Interval(int, 2, None)],
         "min_silhouette": [Interval(float, -1, 1)],
         "max_sample": [Interval(int, 3, None)],
-        "random_state": _SEED,
+        "random_state": _SKLEARN_SEED,
     }
 
     def __init__(
@@ -337,19 +342,24 @@ class SilhouetteKMedoids(Clusterer):
         seed = 0 if self.random_state is None else self.random_state
 
         def fit(k: int) -> Any:
-            return KMedoids(
-                n_clusters=k,
-                metric="precomputed",
-                method="alternate",
-                init="build",
-                random_state=seed,
-            ).fit(D)
+            with warnings.catch_warnings():
+                # with repeated rows a cluster can end up empty; KMedoids warns and goes on
+                warnings.filterwarnings("ignore", "Cluster .* is empty", UserWarning)
+                return KMedoids(
+                    n_clusters=k,
+                    metric="precomputed",
+                    method="alternate",
+                    init="build",
+                    random_state=seed,
+                ).fit(D)
 
+        # no more clusters than distinct rows: repeated rows cannot be told apart
+        distinct = np.unique(S, axis=0).shape[0]
         if self.n_clusters is not None:
-            best = fit(min(self.n_clusters, S.shape[0]))
+            best = fit(min(self.n_clusters, distinct))
         else:
             best, best_score = None, -np.inf
-            for k in range(2, min(self.max_clusters, S.shape[0] - 1) + 1):
+            for k in range(2, min(self.max_clusters, distinct - 1) + 1):
                 model = fit(k)
                 if np.unique(model.labels_).size < 2:
                     continue
@@ -382,7 +392,8 @@ class HDBSCANClusterer(Clusterer):
 
     @property
     def min_rows(self) -> int:  # type: ignore[override]
-        return max(2, int(self.min_cluster_size))
+        # scikit-learn's HDBSCAN refuses fewer rows than min_samples
+        return max(2, int(self.min_cluster_size), int(self.min_samples or 0))
 
     def _labels(self, X: np.ndarray) -> np.ndarray:
         model = HDBSCAN(
@@ -417,7 +428,7 @@ class KMeansMesh(Clusterer):
     _parameter_constraints = {
         "node_rows": [Interval(int, 2, None)],
         "n_init": [Interval(int, 1, None)],
-        "random_state": _SEED,
+        "random_state": _SKLEARN_SEED,
     }
 
     def __init__(self, node_rows: int = 150, *, n_init: int = 2, random_state: int | None = 0):
@@ -427,12 +438,16 @@ class KMeansMesh(Clusterer):
 
     def _labels(self, X: np.ndarray) -> np.ndarray:
         from sklearn.cluster import KMeans
+        from sklearn.exceptions import ConvergenceWarning
 
         k = max(1, round(X.shape[0] / self.node_rows))
         if k == 1:
             return np.zeros(X.shape[0], dtype=np.int64)
         model = KMeans(n_clusters=k, n_init=self.n_init, random_state=self.random_state)
-        return model.fit_predict(X)
+        with warnings.catch_warnings():
+            # fewer distinct rows than k: KMeans warns and returns fewer clusters, as it should
+            warnings.filterwarnings("ignore", "Number of distinct clusters", ConvergenceWarning)
+            return model.fit_predict(X)
 
 
 class EstimatorClusterer(Clusterer):

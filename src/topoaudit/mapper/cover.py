@@ -17,6 +17,7 @@ one value can lie in.
 from __future__ import annotations
 
 import itertools
+import numbers
 from dataclasses import dataclass
 from typing import Any
 
@@ -24,11 +25,35 @@ import numpy as np
 from scipy.stats import rankdata
 
 from topoaudit._validation import Interval, Kind, check_params
-from topoaudit.errors import ParameterError
-from topoaudit.limits import MAX_INTERVALS
+from topoaudit.errors import DataError, LimitError, LimitParameterError, ParameterError
+from topoaudit.limits import MAX_GRAPH_NODES, MAX_INTERVALS, MAX_MEMBERSHIPS
 
-__all__ = ["MAX_INTERVALS", "BalancedCover", "CoverElement", "UniformCover"]
+__all__ = ["MAX_INTERVALS", "MAX_MEMBERSHIPS", "BalancedCover", "CoverElement", "UniformCover"]
 
+
+def _is_count(v: Any) -> bool:
+    return isinstance(v, numbers.Integral) and not isinstance(v, bool)
+
+
+def _count_elements(lows: list[np.ndarray], spans: list[np.ndarray], shape: tuple[int, ...]) -> int:
+    """How many elements hold a row, without forming the memberships.
+
+    Row r lies in the box ``lows[r] .. lows[r] + spans[r]`` of the element grid: a difference
+    array (+1 and -1 at the corners of every box, summed along each axis) counts the rows of
+    every element in O(n_rows + the number of elements).
+    """
+    grid = tuple(n + 1 for n in shape)
+    corners = np.zeros(int(np.prod(grid)), dtype=np.int64)
+    for far in itertools.product((False, True), repeat=len(shape)):
+        idx = tuple(
+            lo + span + 1 if f else lo for lo, span, f in zip(lows, spans, far, strict=True)
+        )
+        sign = -1 if sum(far) % 2 else 1
+        corners += sign * np.bincount(np.ravel_multi_index(idx, grid), minlength=corners.size)
+    counts = corners.reshape(grid)
+    for axis in range(len(shape)):
+        counts = np.cumsum(counts, axis=axis)
+    return int(np.count_nonzero(counts[tuple(slice(0, n) for n in shape)]))
 
 
 @dataclass(frozen=True)
@@ -92,15 +117,40 @@ class _IntervalCover:
     def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         raise NotImplementedError  # pragma: no cover
 
+    def _check_limit(self) -> None:
+        """Refuse interval counts above MAX_INTERVALS, as a limit and a parameter error."""
+        v = self.n_intervals
+        counts = list(v) if isinstance(v, tuple | list) else [v]
+        if all(_is_count(c) and c >= 1 for c in counts) and max(counts) > MAX_INTERVALS:
+            msg = (
+                f"The 'n_intervals' parameter of {type(self).__name__} asks for {max(counts)} "
+                f"intervals per filter dimension, more than the limit of {MAX_INTERVALS} "
+                f"(MAX_INTERVALS): it must be {self._parameter_constraints['n_intervals'][0].label}"
+                f"; got {v!r}."
+            )
+            raise LimitParameterError(msg)
+
     def fit(self, values: Any) -> _IntervalCover:
         """Learn the intervals of each filter dimension from ``values`` (n_rows, d)."""
+        self._check_limit()
         check_params(type(self).__name__, self._parameter_constraints, vars(self))
-        values = np.asarray(values, dtype=np.float64)
+        try:
+            values = np.asarray(values, dtype=np.float64)
+        except (TypeError, ValueError) as exc:
+            msg = f"A cover needs numeric filter values; got values numpy cannot read ({exc})."
+            raise DataError(msg) from exc
         if values.ndim == 1:
             values = values.reshape(-1, 1)
         if values.ndim != 2 or values.shape[1] not in (1, 2) or values.shape[0] == 0:
             msg = f"A cover needs filter values of shape (n_rows, 1 or 2); got {values.shape}."
             raise ParameterError(msg)
+        if not np.isfinite(values).all():
+            rows = np.flatnonzero(~np.isfinite(values).all(axis=1))
+            msg = (
+                f"A cover needs finite filter values; {rows.size} row"
+                f"{'s are' if rows.size > 1 else ' is'} NaN or infinite (first: row {rows[0]})."
+            )
+            raise DataError(msg)
         d = values.shape[1]
         counts = [int(c) for c in self._per_dim(self.n_intervals, d)]
         overlaps = [float(g) for g in self._per_dim(self.overlap, d)]
@@ -135,20 +185,40 @@ class _IntervalCover:
             lo = np.minimum(lo, hi)
             lows.append(lo)
             spans.append(hi - lo)
+        # memberships (row, element) to come, counted before any is formed
+        per_row = np.ones(n_rows, dtype=np.int64)
+        for span in spans:
+            per_row *= span + 1
+        n_members = int(per_row.sum())
+        if n_members > MAX_MEMBERSHIPS:
+            msg = (
+                f"{self!r} would place the {n_rows} rows in {n_members} cover elements in all "
+                f"({n_members / n_rows:.0f} per row); a cover holds at most {MAX_MEMBERSHIPS} "
+                "memberships (MAX_MEMBERSHIPS): lower the overlap or the number of intervals."
+            )
+            raise LimitError(msg)
         shape = self.n_intervals_
-        row_parts, elem_parts = [], []
-        all_rows = np.arange(n_rows, dtype=np.int64)
-        max_span = [int(s.max()) + 1 for s in spans]
-        for offsets in itertools.product(*(range(m) for m in max_span)):
-            mask = np.ones(n_rows, dtype=bool)
-            for j, k in enumerate(offsets):
-                if k:
-                    mask &= spans[j] >= k
-            idx = tuple(lows[j][mask] + k for j, k in enumerate(offsets))
-            row_parts.append(all_rows[mask])
-            elem_parts.append(np.ravel_multi_index(idx, shape))
-        rows = np.concatenate(row_parts)
-        elems = np.concatenate(elem_parts)
+        n_elements = _count_elements(lows, spans, shape)
+        if n_elements > MAX_GRAPH_NODES:
+            msg = (
+                f"{self!r} has {n_elements} non-empty elements, so a graph of it would have at "
+                f"least {n_elements} nodes; a graph has at most {MAX_GRAPH_NODES} "
+                "(MAX_GRAPH_NODES): lower the number of intervals or the overlap."
+            )
+            raise LimitError(msg)
+        # Row r lies in the elements lows[r] + (k_0, .., k_{d-1}) with 0 <= k_j <= spans[j][r]:
+        # enumerate them all at once, the last dimension fastest.
+        rows = np.repeat(np.arange(n_rows, dtype=np.int64), per_row)
+        offset = np.arange(n_members, dtype=np.int64)
+        offset -= np.repeat(np.cumsum(per_row) - per_row, per_row)
+        idx: list[np.ndarray] = []
+        for j in reversed(range(len(spans))):
+            base = np.repeat(spans[j] + 1, per_row)
+            idx.insert(0, np.repeat(lows[j], per_row) + offset % base)
+            offset //= base
+        del offset, base
+        elems = np.ravel_multi_index(tuple(idx), shape)
+        del idx
         key = np.sort(elems * np.int64(n_rows) + rows)  # one sort orders by element, then row
         elems, rows = key // n_rows, key % n_rows
         cut = np.flatnonzero(np.diff(elems)) + 1
@@ -186,11 +256,16 @@ class UniformCover(_IntervalCover):
         lo, hi = float(column.min()), float(column.max())
         if hi <= lo:
             return np.zeros_like(column)
-        return np.clip((column - lo) / (hi - lo), 0.0, 1.0)
+        if np.isfinite(hi - lo):
+            return np.clip((column - lo) / (hi - lo), 0.0, 1.0)
+        # a range wider than the largest float: halve first, so nothing overflows
+        return np.clip((column / 2 - lo / 2) / (hi / 2 - lo / 2), 0.0, 1.0)
 
     def _interval_bounds(self, column: np.ndarray, starts: np.ndarray, ends: np.ndarray):
         lo, hi = float(column.min()), float(column.max())
-        return np.column_stack([lo + starts * (hi - lo), lo + ends * (hi - lo)])
+        if np.isfinite(hi - lo):
+            return np.column_stack([lo + starts * (hi - lo), lo + ends * (hi - lo)])
+        return np.column_stack([lo * (1 - starts) + hi * starts, lo * (1 - ends) + hi * ends])
 
 
 class BalancedCover(_IntervalCover):

@@ -19,6 +19,7 @@ from sklearn.decomposition import PCA
 
 from topoaudit._validation import NONE, Interval, Kind, check_params, random_generator
 from topoaudit.errors import FilterError, ParameterError, unknown_name
+from topoaudit.limits import MAX_MAGNITUDE
 from topoaudit.mapper._distances import iter_sq_distances, kth_distance
 from topoaudit.mapper._input import as_matrix
 
@@ -64,7 +65,10 @@ class Filter:
         """
         check_params(type(self).__name__, self._parameter_constraints, vars(self))
         X = as_matrix(X)
-        values = self._compute(X)
+        # an overflow (a huge exponent, a tiny bandwidth) shows as a non-finite value, which
+        # check_filter_values names; numpy's own warning would say less
+        with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+            values = self._compute(X)
         return check_filter_values(values, X.shape[0], type(self).__name__)
 
     def _compute(self, X: np.ndarray) -> Any:  # pragma: no cover - abstract
@@ -94,8 +98,18 @@ def check_filter_values(values: Any, n_rows: int, owner: str) -> np.ndarray:
     if bad.any():
         rows = np.flatnonzero(bad)
         msg = (
-            f"Filter {owner} returned NaN or infinite values for {rows.size} rows "
-            f"(first: row {int(rows[0])}); every row needs a finite filter value."
+            f"Filter {owner} returned NaN or infinite values for {rows.size} "
+            f"row{'s' if rows.size > 1 else ''} (first: row {int(rows[0])}); every row needs a "
+            "finite filter value (check the filter's parameters and the scale of X)."
+        )
+        raise FilterError(msg)
+    huge = (np.abs(arr) > MAX_MAGNITUDE).any(axis=1)
+    if huge.any():
+        rows = np.flatnonzero(huge)
+        msg = (
+            f"Filter {owner} returned values of magnitude above {MAX_MAGNITUDE:g} for "
+            f"{rows.size} row{'s' if rows.size > 1 else ''} (first: row {int(rows[0])}); "
+            "rescale the filter values."
         )
         raise FilterError(msg)
     return np.ascontiguousarray(arr)
@@ -160,11 +174,23 @@ class PrincipalComponents(Filter):
                 f"X has {X.shape[1]}."
             )
             raise FilterError(msg)
+        centred = X - X.mean(axis=0)
+        scale = float(np.abs(centred).max())
+        if scale == 0.0:  # every column constant: every row projects to 0
+            return np.zeros((X.shape[0], self.n_components))
+        if not 1e-100 <= scale <= 1e100:
+            # the covariance of deviations near 1e-300 (or 1e150) would under- (or over-)
+            # flow; the projection scales with the data, so project X / scale and scale back
+            X = centred / scale
+        else:
+            scale = 1.0
         if self.standardize:
             sd = X.std(axis=0)
             X = (X - X.mean(axis=0)) / np.where(sd > 0, sd, 1.0)
+            scale = 1.0
         solver = "covariance_eigh" if X.shape[0] >= X.shape[1] else "full"
-        return PCA(n_components=self.n_components, svd_solver=solver).fit_transform(X)
+        values = PCA(n_components=self.n_components, svd_solver=solver).fit_transform(X)
+        return values * scale if scale != 1.0 else values
 
 
 class _Sampled(Filter):
@@ -264,8 +290,12 @@ class GaussianDensity(_Sampled):
             h = (sd if sd > 0 else 1.0) * n ** (-1.0 / (d + 4))
         ref = self._references(X)
         out = np.empty(n)
+        two_h2 = -2.0 * h * h
         for start, stop, d2 in iter_sq_distances(X, ref):
-            out[start:stop] = np.mean(np.exp(d2 / (-2.0 * h * h)), axis=1)
+            if two_h2 != 0.0:
+                out[start:stop] = np.mean(np.exp(d2 / two_h2), axis=1)
+            else:  # h² underflows to 0 for a tiny bandwidth: divide by h twice instead
+                out[start:stop] = np.mean(np.exp(-0.5 * ((d2 / h) / h)), axis=1)
         if ref.shape[0] < n:  # the row itself may not be a reference; keep values positive
             np.maximum(out, 1.0 / ref.shape[0], out=out)
         return out

@@ -22,7 +22,8 @@ from typing import Any
 import numpy as np
 
 from topoaudit._validation import NONE, Choice, Interval, Kind, check_params
-from topoaudit.errors import DataError, TopoauditError, unknown_name
+from topoaudit.errors import DataError, LimitError, TopoauditError, unknown_name
+from topoaudit.limits import MAX_GRAPH_NODES
 from topoaudit.mapper._input import as_matrix
 from topoaudit.mapper.clustering import Clusterer, make_clusterer, relabel
 from topoaudit.mapper.cover import COVERS
@@ -388,13 +389,14 @@ class MapperBuilder:
             and isinstance(self.clusterer, str)
         ):
             clusterer.random_state = self.random_state
+            clusterer.check()  # here, not in a worker, if the seed does not suit it
         executor = make_executor(self.n_jobs)
         cover = self._make_cover()
         X = as_matrix(X, min_rows=1)
         if X.shape[0] < clusterer.min_rows:
             msg = (
-                f"X has {X.shape[0]} rows; the clusterer {type(clusterer).__name__} needs at "
-                f"least {clusterer.min_rows}."
+                f"X has {X.shape[0]} row{'s' if X.shape[0] != 1 else ''}; the clusterer "
+                f"{type(clusterer).__name__} needs at least {clusterer.min_rows}."
             )
             raise DataError(msg)
 
@@ -409,6 +411,8 @@ class MapperBuilder:
         values = self._filter_obj.fit_transform(X)
         t1 = time.perf_counter()
         elements = cover.fit_transform(values)
+        if len(elements) > MAX_GRAPH_NODES:  # each element gives one node or more
+            raise _too_many_nodes(len(elements), "at least", cover)
         t2 = time.perf_counter()
 
         weights = [float(e.size) for e in elements]
@@ -427,6 +431,16 @@ class MapperBuilder:
             msg = f"The clusterer {clusterer!r} failed on a cover element: {exc}"
             raise ClusteringError(msg) from exc
         t3 = time.perf_counter()
+
+        n_nodes = 0
+        for labels, _ in results:
+            labels = np.asarray(labels)
+            if labels.size:
+                n_nodes += max(int(labels.max()) + 1, 0)
+                if self.noise == "singleton":
+                    n_nodes += int(np.count_nonzero(labels < 0))
+        if n_nodes > MAX_GRAPH_NODES:  # counted from the labels, before any node is formed
+            raise _too_many_nodes(n_nodes, "", clusterer)
 
         d = values.shape[1]
         members: list[np.ndarray] = []
@@ -492,6 +506,15 @@ class MapperBuilder:
             f"n_intervals={self.n_intervals!r}, overlap={self.overlap!r}, "
             f"clusterer={self.clusterer!r})"
         )
+
+
+def _too_many_nodes(n: int, qualifier: str, cause: Any) -> LimitError:
+    asked = f"{qualifier} {n}".strip()
+    return LimitError(
+        f"This graph would have {asked} nodes (from {cause!r}); a graph has at most "
+        f"{MAX_GRAPH_NODES} nodes (MAX_GRAPH_NODES): use fewer intervals, a smaller overlap "
+        "or a clusterer that makes fewer clusters."
+    )
 
 
 def _init_args(filter_name: str) -> tuple[str, ...]:
