@@ -92,7 +92,7 @@ def _read_csv(path: Path) -> pd.DataFrame:
     frame = pd.read_csv(path, keep_default_na=True, nrows=MAX_ROWS + 1, low_memory=False)
     if frame.shape[0] > MAX_ROWS:
         raise _too_many_rows(path)
-    if not isinstance(frame.index, pd.RangeIndex) or frame.shape[1] != len(written):
+    if not frame.index.equals(pd.RangeIndex(len(frame))) or frame.shape[1] != len(written):
         # rows with one field more than the header: pandas would take the first as an index
         msg = (
             f"{path}: some rows have more fields than the header's {len(written)} names; "
