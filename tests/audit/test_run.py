@@ -120,6 +120,7 @@ def test_cli_audit_writes_the_bundle_and_refuses_a_non_empty_folder(project, tmp
     assert sorted(p.name for p in out.iterdir()) == [
         "analysis.json",
         "charts",
+        "checksums.json",
         "graph.json",
         "members.parquet",
         "page.md",
