@@ -53,6 +53,7 @@ def _kill_points(root: Path, *args: str, limit: int, least: int = 5) -> list[int
         rest = [p for p in chosen if p not in keep]
         chosen = sorted(keep | set(rest[:: max(1, len(rest) // max(1, limit - len(keep)))]))
     assert len(chosen) >= least, (n, chosen)
+    print(f"{' '.join(args[:2])}: kill points {chosen} of {n} writes")  # shown with -s
     return chosen
 
 
