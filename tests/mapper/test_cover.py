@@ -99,11 +99,15 @@ def test_balanced_cover_with_ties_matches_the_naive_reference():
     assert_between_naive_bounds(elements, [t], [(0.0, 1.0)], [6], [0.3])
 
 
+@pytest.mark.parametrize(
+    ("counts", "overlaps"),
+    [((3, 4), (0.2, 0.4)), ((12, 12), (0.9, 0.9)), ((1, 100), (0.0, 0.99))],
+    ids=["light", "heavy (memberships enumerated at once)", "one by a hundred"],
+)
 @pytest.mark.parametrize("cover_cls", [UniformCover, BalancedCover], ids=["uniform", "balanced"])
-def test_product_cover_in_two_dimensions_matches_the_naive_product(cover_cls):
+def test_product_cover_in_two_dimensions_matches_the_naive_product(cover_cls, counts, overlaps):
     rng = np.random.default_rng(9)
     values = np.column_stack([rng.normal(size=250), rng.uniform(size=250)])
-    counts, overlaps = (3, 4), (0.2, 0.4)
     elements = cover_cls(counts, overlap=overlaps).fit_transform(values)
     if cover_cls is UniformCover:
         per_dim = [values[:, 0], values[:, 1]]

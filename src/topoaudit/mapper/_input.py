@@ -9,7 +9,16 @@ import numpy as np
 from topoaudit.errors import DataError
 from topoaudit.limits import MAX_MAGNITUDE
 
-__all__ = ["MAX_MAGNITUDE", "as_matrix", "describe_rows"]
+__all__ = ["MAX_MAGNITUDE", "as_matrix", "describe_rows", "within_magnitude"]
+
+
+def within_magnitude(arr: np.ndarray) -> bool:
+    """True if every value is finite and of magnitude at most MAX_MAGNITUDE (NaN fails:
+    it propagates through min and max)."""
+    if arr.size == 0:
+        return True
+    lo, hi = arr.min(), arr.max()
+    return bool(lo >= -MAX_MAGNITUDE and hi <= MAX_MAGNITUDE)
 
 
 def describe_rows(rows: np.ndarray, limit: int = 5) -> str:
@@ -87,6 +96,8 @@ def as_matrix(X: Any, *, name: str = "X", min_rows: int = 1) -> np.ndarray:
         msg = f"{name} has {rows}; at least {min_rows} are needed."
         raise DataError(msg)
     arr = np.ascontiguousarray(arr, dtype=np.float64)
+    if within_magnitude(arr):  # the common case, in two passes that allocate nothing
+        return arr
     finite = np.isfinite(arr)
     if not finite.all():
         bad_rows = np.flatnonzero(~finite.all(axis=1))

@@ -206,19 +206,32 @@ class _IntervalCover:
                 "(MAX_GRAPH_NODES): lower the number of intervals or the overlap."
             )
             raise LimitError(msg)
-        # Row r lies in the elements lows[r] + (k_0, .., k_{d-1}) with 0 <= k_j <= spans[j][r]:
-        # enumerate them all at once, the last dimension fastest.
-        rows = np.repeat(np.arange(n_rows, dtype=np.int64), per_row)
-        offset = np.arange(n_members, dtype=np.int64)
-        offset -= np.repeat(np.cumsum(per_row) - per_row, per_row)
-        idx: list[np.ndarray] = []
-        for j in reversed(range(len(spans))):
-            base = np.repeat(spans[j] + 1, per_row)
-            idx.insert(0, np.repeat(lows[j], per_row) + offset % base)
-            offset //= base
-        del offset, base
-        elems = np.ravel_multi_index(tuple(idx), shape)
-        del idx
+        # Row r lies in the elements lows[r] + (k_0, .., k_{d-1}) with 0 <= k_j <= spans[j][r].
+        max_span = [int(sp.max()) + 1 for sp in spans]
+        if int(np.prod(max_span)) <= 64:  # the usual overlaps: one masked pass per offset
+            all_rows = np.arange(n_rows, dtype=np.int64)
+            row_parts, elem_parts = [], []
+            for offsets in itertools.product(*(range(m) for m in max_span)):
+                mask = np.ones(n_rows, dtype=bool)
+                for j, k in enumerate(offsets):
+                    if k:
+                        mask &= spans[j] >= k
+                idx = tuple(lows[j][mask] + k for j, k in enumerate(offsets))
+                row_parts.append(all_rows[mask])
+                elem_parts.append(np.ravel_multi_index(idx, shape))
+            rows, elems = np.concatenate(row_parts), np.concatenate(elem_parts)
+        else:  # wide spans: enumerate every membership at once, the last dimension fastest
+            rows = np.repeat(np.arange(n_rows, dtype=np.int64), per_row)
+            offset = np.arange(n_members, dtype=np.int64)
+            offset -= np.repeat(np.cumsum(per_row) - per_row, per_row)
+            idx_parts: list[np.ndarray] = []
+            for j in reversed(range(len(spans))):
+                base = np.repeat(spans[j] + 1, per_row)
+                idx_parts.insert(0, np.repeat(lows[j], per_row) + offset % base)
+                offset //= base
+            del offset, base
+            elems = np.ravel_multi_index(tuple(idx_parts), shape)
+            del idx_parts
         key = np.sort(elems * np.int64(n_rows) + rows)  # one sort orders by element, then row
         elems, rows = key // n_rows, key % n_rows
         cut = np.flatnonzero(np.diff(elems)) + 1

@@ -21,7 +21,7 @@ from topoaudit._validation import NONE, Interval, Kind, check_params, random_gen
 from topoaudit.errors import FilterError, ParameterError, unknown_name
 from topoaudit.limits import MAX_MAGNITUDE
 from topoaudit.mapper._distances import iter_sq_distances, kth_distance
-from topoaudit.mapper._input import as_matrix
+from topoaudit.mapper._input import as_matrix, within_magnitude
 
 __all__ = [
     "FILTERS",
@@ -94,6 +94,8 @@ def check_filter_values(values: Any, n_rows: int, owner: str) -> np.ndarray:
             f"({n_rows}, 1) or ({n_rows}, 2): one value or two per row."
         )
         raise FilterError(msg)
+    if within_magnitude(arr):
+        return np.ascontiguousarray(arr)
     bad = ~np.isfinite(arr).all(axis=1)
     if bad.any():
         rows = np.flatnonzero(bad)
@@ -174,16 +176,16 @@ class PrincipalComponents(Filter):
                 f"X has {X.shape[1]}."
             )
             raise FilterError(msg)
-        centred = X - X.mean(axis=0)
-        scale = float(np.abs(centred).max())
-        if scale == 0.0:  # every column constant: every row projects to 0
+        span = float((X.max(axis=0) - X.min(axis=0)).max())  # two passes, no copy of X
+        if span == 0.0:  # every column constant: every row projects to 0
             return np.zeros((X.shape[0], self.n_components))
-        if not 1e-100 <= scale <= 1e100:
+        scale = 1.0
+        if not 1e-100 <= span <= 1e100:
             # the covariance of deviations near 1e-300 (or 1e150) would under- (or over-)
             # flow; the projection scales with the data, so project X / scale and scale back
+            centred = X - X.mean(axis=0)
+            scale = float(np.abs(centred).max())
             X = centred / scale
-        else:
-            scale = 1.0
         if self.standardize:
             sd = X.std(axis=0)
             X = (X - X.mean(axis=0)) / np.where(sd > 0, sd, 1.0)
