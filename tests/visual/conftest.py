@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import functools
+import http.server
 import json
+import threading
 from pathlib import Path
 
 import pytest
@@ -11,6 +14,50 @@ from topoaudit.report.page import build_page
 
 FIXTURE = Path(__file__).parent / "fixture"
 RELEASES = ("2026.1", "2026.2")
+CHROMIUM = "/usr/bin/chromium"
+#: without the background-networking flags Chromium keeps trying hosts this network
+#: refuses; the font and colour flags keep screenshots the same from run to run
+CHROMIUM_ARGS = [
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+    "--font-render-hinting=none",
+    "--force-color-profile=srgb",
+]
+
+
+class _Quiet(http.server.SimpleHTTPRequestHandler):
+    def log_message(self, *args):
+        pass
+
+
+class _QuietServer(http.server.ThreadingHTTPServer):
+    def handle_error(self, request, client_address):
+        pass  # a browser closing a connection early is not a test failure
+
+
+def serve(root: Path) -> http.server.ThreadingHTTPServer:
+    """Serve ``root`` on a free port of 127.0.0.1 from a background thread."""
+    handler = functools.partial(_Quiet, directory=str(root))
+    server = _QuietServer(("127.0.0.1", 0), handler)
+    threading.Thread(target=server.serve_forever, daemon=True).start()
+    return server
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """Debian's Chromium through Playwright (never a downloaded browser)."""
+    if not Path(CHROMIUM).exists():
+        pytest.fail(f"{CHROMIUM} is missing: install Debian's chromium (.ci/run does)")
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        yield b
+        b.close()
 
 
 @pytest.fixture(scope="session")

@@ -12,31 +12,20 @@ render; and the hostile strings must show literally in the text of the pages.
 
 from __future__ import annotations
 
-import functools
-import http.server
 import json
 import os
-import threading
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from tests.visual.conftest import serve
 from topoaudit.audit.run import run_audit
 from topoaudit.cli import _write_bundle
 from topoaudit.config import load_config
 from topoaudit.demo import make_meters
 from topoaudit.report.site import build_site, publish
 
-CHROMIUM = "/usr/bin/chromium"
-ARGS = [
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--no-first-run",
-]
 SCRIPT = "<script>alert(1)</script>"
 IMG = '"><img src=x onerror=alert(1)>'
 LINK = "[click](javascript:alert(1))"
@@ -129,27 +118,8 @@ def hostile_site(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def browser():
-    if not Path(CHROMIUM).exists():
-        pytest.fail(f"{CHROMIUM} is missing: install Debian's chromium (.ci/run does)")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        yield b
-        b.close()
-
-
-class _Quiet(http.server.SimpleHTTPRequestHandler):
-    def log_message(self, *args):
-        pass
-
-
-@pytest.fixture(scope="module")
 def served(hostile_site):
-    handler = functools.partial(_Quiet, directory=str(hostile_site))
-    server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), handler)
-    threading.Thread(target=server.serve_forever, daemon=True).start()
+    server = serve(hostile_site)
     yield f"http://127.0.0.1:{server.server_address[1]}/"
     server.shutdown()
     server.server_close()

@@ -7,35 +7,21 @@ on any request to another host, and compares the full-page screenshot with its b
 
 from __future__ import annotations
 
-import functools
-import http.server
 import shutil
-import threading
 from pathlib import Path
 
 import pytest
 
 from tests.visual.compare import check_image
-from tests.visual.conftest import FIXTURE, RELEASES
+from tests.visual.conftest import FIXTURE, RELEASES, serve
 from topoaudit.report.site import build_site, publish
 
-CHROMIUM = "/usr/bin/chromium"
 PAGES = {
     "home": "",
     "history": "meter-failure/",
     "release": "meter-failure/2026.2/",
     "comparison": "meter-failure/compare/2026.1-to-2026.2/",
 }
-ARGS = [
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--no-first-run",
-    "--font-render-hinting=none",
-    "--force-color-profile=srgb",
-]
 
 
 def _build(tmp: Path) -> Path:
@@ -47,11 +33,6 @@ def _build(tmp: Path) -> Path:
     return build_site(archive, tmp / "site", site_name="Fixture audits")
 
 
-class _Quiet(http.server.SimpleHTTPRequestHandler):
-    def log_message(self, *args):
-        pass
-
-
 @pytest.fixture(scope="module")
 def site(tmp_path_factory, monkeypatch_module=None):
     import os
@@ -60,27 +41,8 @@ def site(tmp_path_factory, monkeypatch_module=None):
     return _build(tmp_path_factory.mktemp("browser"))
 
 
-@pytest.fixture(scope="module")
-def browser():
-    if not Path(CHROMIUM).exists():
-        pytest.fail(f"{CHROMIUM} is missing: install Debian's chromium (.ci/run does)")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
-        yield b
-        b.close()
-
-
-def _serve(root: Path):
-    handler = functools.partial(_Quiet, directory=str(root))
-    server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), handler)
-    threading.Thread(target=server.serve_forever, daemon=True).start()
-    return server
-
-
 def _visit(browser, root: Path, path: str) -> tuple[bytes, list[str], list[str], list[str]]:
-    server = _serve(root)
+    server = serve(root)
     base = f"http://127.0.0.1:{server.server_address[1]}/"
     try:
         page = browser.new_page(viewport={"width": 1280, "height": 900})
