@@ -20,15 +20,13 @@ from pathlib import Path
 
 import pytest
 
+from tests.conftest import LIGHT_AUDIT
 from topoaudit.demo import write_demo_project
 from topoaudit.report.archive import CHECKSUMS, bundle_findings, verify_archive, write_checksums
 
 KILLER = Path(__file__).with_name("killer.py")
 MODEL = "meter-failure"
 SPREAD = 6  # writes picked evenly besides the commit points
-LIGHT_AUDIT = (
-    "\n[audit]\nstability_intervals = [0, 2]\nstability_overlaps = [0.0]\nbootstrap_resamples = 1\n"
-)
 
 
 def _run(kill_at: int, root: Path, *args: str, log: Path | None = None):

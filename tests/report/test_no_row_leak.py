@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import gzip
 import json
-import os
 import re
 from pathlib import Path
 
@@ -27,13 +26,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from tests.conftest import LIGHT_AUDIT, audit_and_publish, fixed_build_date
 from topoaudit import limits
-from topoaudit.audit.run import run_audit
-from topoaudit.cli import _write_bundle
-from topoaudit.config import load_config
 from topoaudit.demo import DEMO_CONFIG, FEATURES, make_meters
 from topoaudit.report.page import MIN_CELL_ROWS, build_page, drawn_graph
-from topoaudit.report.site import build_site, publish
+from topoaudit.report.site import build_site
 
 ROWS = 1500
 SCORES = ("score_2026_1", "score_2026_2")
@@ -83,34 +80,16 @@ def _forbidden(frame: pd.DataFrame) -> set[str]:
 
 @pytest.fixture(scope="module")
 def leak_site(tmp_path_factory):
-    old = os.environ.get("SOURCE_DATE_EPOCH")
-    os.environ["SOURCE_DATE_EPOCH"] = "1767225600"
-    try:
+    with fixed_build_date():
         root = tmp_path_factory.mktemp("leak")
         project = root / "project"
         project.mkdir()
         frame = _meters()
         frame.to_csv(project / "meters.csv", index=False)
-        config_text = DEMO_CONFIG + (
-            "\n[audit]\nstability_intervals = [0, 2]\nstability_overlaps = [0.0]\n"
-            "bootstrap_resamples = 1\n"
-        )
-        (project / "audit.toml").write_text(config_text, encoding="utf-8")
-        config = load_config(project / "audit.toml")
-        archive = root / "archive"
-        bundles = {}
-        for release in config.releases:
-            bundle = root / "bundles" / release.name
-            _write_bundle(run_audit(config, release=release.name), bundle)
-            publish(bundle, archive)
-            bundles[release.name] = bundle
+        (project / "audit.toml").write_text(DEMO_CONFIG + LIGHT_AUDIT, encoding="utf-8")
+        bundles, archive = audit_and_publish(project / "audit.toml", root)
         site = build_site(archive, root / "site")
         yield frame, bundles, site
-    finally:
-        if old is None:
-            os.environ.pop("SOURCE_DATE_EPOCH", None)
-        else:
-            os.environ["SOURCE_DATE_EPOCH"] = old
 
 
 def _site_texts(site: Path):

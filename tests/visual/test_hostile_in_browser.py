@@ -13,18 +13,15 @@ render; and the hostile strings must show literally in the text of the pages.
 from __future__ import annotations
 
 import json
-import os
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from tests.conftest import audit_and_publish, fixed_build_date
 from tests.visual.conftest import serve
-from topoaudit.audit.run import run_audit
-from topoaudit.cli import _write_bundle
-from topoaudit.config import load_config
 from topoaudit.demo import make_meters
-from topoaudit.report.site import build_site, publish
+from topoaudit.report.site import build_site
 
 SCRIPT = "<script>alert(1)</script>"
 IMG = '"><img src=x onerror=alert(1)>'
@@ -99,22 +96,10 @@ bootstrap_resamples = 1
 
 @pytest.fixture(scope="module")
 def hostile_site(tmp_path_factory):
-    old = os.environ.get("SOURCE_DATE_EPOCH")
-    os.environ["SOURCE_DATE_EPOCH"] = "1767225600"
-    try:
+    with fixed_build_date():
         root = tmp_path_factory.mktemp("hostile")
-        config = load_config(_project(root / "project"))
-        archive = root / "archive"
-        for release in config.releases:
-            bundle = root / "bundles" / release.name
-            _write_bundle(run_audit(config, release=release.name), bundle)
-            publish(bundle, archive)
+        _, archive = audit_and_publish(_project(root / "project"), root)
         yield build_site(archive, root / "site", site_name=SITE_NAME)
-    finally:
-        if old is None:
-            os.environ.pop("SOURCE_DATE_EPOCH", None)
-        else:
-            os.environ["SOURCE_DATE_EPOCH"] = old
 
 
 @pytest.fixture(scope="module")
