@@ -16,6 +16,7 @@ row the label of its nearest sampled row (or medoid); below that size they are e
 
 from __future__ import annotations
 
+import math
 import numbers
 import time
 import warnings
@@ -118,12 +119,16 @@ class SingleLinkage(Clusterer):
     bin; with no empty bin the element is one cluster. It is sensitive to sampling gaps
     along a continuous shape, which is why it is not the default.
 
+    ``cut=<a positive number>`` cuts at that distance: the clusters are the connected
+    components of the graph joining rows at most that far apart. The Mapper settings
+    chosen from the data (:mod:`topoaudit.mapper.auto`) cut at their scale ``δ``.
+
     Clusters with fewer than ``min_cluster_size`` rows (default 1: none) are labelled
     noise, for the builder's ``noise`` policy.
 
     Parameters
     ----------
-    cut : {"scale", "gap"}, default="scale"
+    cut : {"scale", "gap"} or float, default="scale"
     k : int, default=5
     quantile : float, default=0.9
     factor : float, default=2.0
@@ -133,6 +138,10 @@ class SingleLinkage(Clusterer):
     max_sample : int, default=1000
         Larger elements are clustered on a seeded sample of this many rows; every other
         row takes the label of its nearest sampled row.
+    sample_share : float or None, default=None
+        If given, elements are clustered on a seeded sample of this share of their rows
+        (at least 2) instead, so that a cut at a fixed distance meets rows of the density
+        it was chosen for; ``max_sample`` is then not used.
     random_state : int or None, default=0
 
     Notes
@@ -150,19 +159,20 @@ class SingleLinkage(Clusterer):
     """
 
     _parameter_constraints = {
-        "cut": [Choice(("scale", "gap"))],
+        "cut": [Choice(("scale", "gap")), Interval(float, 0, None, closed="neither")],
         "k": [Interval(int, 1, None)],
         "quantile": [Interval(float, 0, 1, closed="right")],
         "factor": [Interval(float, 0, None, closed="neither")],
         "n_bins": [Interval(int, 2, 10_000)],
         "min_cluster_size": [Interval(int, 1, None)],
         "max_sample": [Interval(int, 2, None)],
+        "sample_share": [Interval(float, 0, 1, closed="right"), NONE],
         "random_state": _SEED,
     }
 
     def __init__(
         self,
-        cut: str = "scale",
+        cut: str | float = "scale",
         *,
         k: int = 5,
         quantile: float = 0.9,
@@ -170,6 +180,7 @@ class SingleLinkage(Clusterer):
         n_bins: int = 10,
         min_cluster_size: int = 1,
         max_sample: int = 1000,
+        sample_share: float | None = None,
         random_state: int | None = 0,
     ) -> None:
         self.cut = cut
@@ -179,10 +190,13 @@ class SingleLinkage(Clusterer):
         self.n_bins = n_bins
         self.min_cluster_size = min_cluster_size
         self.max_sample = max_sample
+        self.sample_share = sample_share
         self.random_state = random_state
 
     def _threshold(self, S: np.ndarray, heights: np.ndarray) -> float | None:
         """The cut height, or None for a single cluster."""
+        if not isinstance(self.cut, str):
+            return float(self.cut)
         if self.cut == "scale":
             kd = kth_distance(S, S, min(self.k, S.shape[0] - 1), self_included=True)
             return self.factor * float(np.quantile(kd, self.quantile))
@@ -197,7 +211,11 @@ class SingleLinkage(Clusterer):
         n = X.shape[0]
         if n < 2:
             return np.zeros(n, dtype=np.int64)
-        sample = _sample(n, self.max_sample, self.random_state)
+        if self.sample_share is None:
+            sample = _sample(n, self.max_sample, self.random_state)
+        else:
+            size = max(2, math.ceil(self.sample_share * n))
+            sample = _sample(n, size, self.random_state)
         S = X if sample is None else X[sample]
         # condensed distances, not the rows: a square block of rows that happens to look
         # like a distance matrix (a symmetric 0/1 grid) would otherwise be taken for one

@@ -25,12 +25,17 @@ from topoaudit._validation import NONE, Choice, Interval, Kind, check_params
 from topoaudit.errors import DataError, LimitError, TopoauditError, unknown_name
 from topoaudit.limits import MAX_GRAPH_NODES
 from topoaudit.mapper._input import as_matrix
-from topoaudit.mapper.clustering import Clusterer, make_clusterer, relabel
+from topoaudit.mapper.auto import DEFAULT_GAIN, AutoChoice, choose_settings
+from topoaudit.mapper.clustering import Clusterer, SingleLinkage, make_clusterer, relabel
 from topoaudit.mapper.cover import COVERS
 from topoaudit.mapper.executor import ProcessExecutor, make_executor
 from topoaudit.mapper.filters import make_filter
 
-__all__ = ["ClusteringError", "MapperBuilder", "MapperGraph", "nerve"]
+__all__ = ["AUTO", "ClusteringError", "MapperBuilder", "MapperGraph", "nerve"]
+
+AUTO = "auto"
+"""The value of ``n_intervals``, ``overlap`` and ``clusterer`` that asks for the settings
+chosen from the data (:mod:`topoaudit.mapper.auto`)."""
 
 
 class ClusteringError(TopoauditError, RuntimeError):
@@ -277,7 +282,7 @@ def _cluster_rows(
 
 _CLUSTERER_SPEC = Kind(
     lambda v: isinstance(v, str | Clusterer) or hasattr(v, "fit_predict"),
-    "a clusterer name or an object with fit_predict",
+    "'auto', a clusterer name or an object with fit_predict",
 )
 
 
@@ -291,10 +296,19 @@ class MapperBuilder:
     filter_params : dict or None, default=None
         Parameters for a filter given by name.
     cover : {"uniform", "balanced"} or cover object, default="uniform"
-    n_intervals : int or (int, int), default=10
-    overlap : float or (float, float), default=0.3
-    clusterer : str or object with fit_predict, default="single_linkage"
+    n_intervals : "auto", int or (int, int), default="auto"
+        ``"auto"``: the most intervals whose length is at least the interval length chosen
+        from the data (:func:`topoaudit.mapper.auto.choose_settings`: the filter's largest
+        change between rows within the neighbourhood scale, divided by the gain).
+    overlap : "auto", float or (float, float), default="auto"
+        The gain: the share of an interval's length it shares with its neighbour;
+        ``"auto"`` is 0.4, inside the range (1/3, 1/2) of Carrière, Michel and Oudot (2018).
+    clusterer : "auto", str or object with fit_predict, default="auto"
+        ``"auto"``: single linkage cut at the neighbourhood scale chosen from the data.
     clusterer_params : dict or None, default=None
+    auto_rows : int, default=5000
+        Above this many rows, the settings are chosen on a seeded sample of this size and
+        the automatic clusterer clusters the same share of each element.
     noise : {"singleton", "drop"}, default="singleton"
         What becomes of rows a clusterer labels noise: a node of one row each, or no node
         (the row then lies in no node of that element; :attr:`n_noise_` counts them).
@@ -307,6 +321,11 @@ class MapperBuilder:
     Attributes
     ----------
     graph_ : MapperGraph
+    auto_ : AutoChoice or None
+        What was chosen from the data, when any setting was ``"auto"``.
+    n_intervals_, overlap_ : tuple
+        The interval counts and overlaps used, per filter dimension.
+    clusterer_ : the clusterer used
     filter_values_ : ndarray of shape (n_rows, d)
     cover_ : the fitted cover
     n_elements_ : int
@@ -321,9 +340,14 @@ class MapperBuilder:
     --------
     >>> angle = np.linspace(0, 2 * np.pi, 400, endpoint=False)
     >>> circle = np.column_stack([np.cos(angle), np.sin(angle)])
-    >>> builder = MapperBuilder("coordinate", filter_params={"columns": 1}, n_intervals=4)
+    >>> builder = MapperBuilder("coordinate", filter_params={"columns": 1}, n_intervals=4,
+    ...                         overlap=0.3, clusterer="single_linkage")
     >>> builder.fit(circle).graph_.n_nodes
     6
+    >>> from topoaudit.mapper.topology import invariants
+    >>> auto = MapperBuilder("coordinate", filter_params={"columns": 1}).fit(circle)
+    >>> invariants(auto.graph_).cycle_rank, auto.n_intervals_, auto.overlap_
+    (1, (5,), (0.4,))
     """
 
     _parameter_constraints = {
@@ -333,6 +357,7 @@ class MapperBuilder:
         "filter_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
         "clusterer_params": [Kind(lambda v: v is None or isinstance(v, dict), "a dict or None")],
         "random_state": [Interval(int, 0, None), NONE],
+        "auto_rows": [Interval(int, 10, None)],
     }
 
     def __init__(
@@ -341,13 +366,14 @@ class MapperBuilder:
         *,
         filter_params: dict[str, Any] | None = None,
         cover: Any = "uniform",
-        n_intervals: int | tuple[int, int] = 10,
-        overlap: float | tuple[float, float] = 0.3,
-        clusterer: Any = "single_linkage",
+        n_intervals: int | tuple[int, int] | str = AUTO,
+        overlap: float | tuple[float, float] | str = AUTO,
+        clusterer: Any = AUTO,
         clusterer_params: dict[str, Any] | None = None,
         noise: str = "singleton",
         n_jobs: Any = None,
         random_state: int | None = 0,
+        auto_rows: int = 5000,
     ) -> None:
         self.filter = filter
         self.filter_params = filter_params
@@ -359,21 +385,49 @@ class MapperBuilder:
         self.noise = noise
         self.n_jobs = n_jobs
         self.random_state = random_state
+        self.auto_rows = auto_rows
 
-    def _make_cover(self) -> Any:
+    def _make_cover(self, n_intervals: Any, overlap: Any) -> Any:
         if isinstance(self.cover, str):
             if self.cover not in COVERS:
                 raise unknown_name("cover", self.cover, COVERS)
-            return COVERS[self.cover](self.n_intervals, overlap=self.overlap)
+            return COVERS[self.cover](n_intervals, overlap=overlap)
         return self.cover
 
+    def _wants_auto(self) -> bool:
+        return AUTO in (self.n_intervals, self.overlap) or (
+            isinstance(self.clusterer, str) and self.clusterer == AUTO
+        )
+
+    def _choose(self, X: np.ndarray, values: np.ndarray) -> AutoChoice:
+        """The settings chosen from the data (given numbers are kept)."""
+        return choose_settings(
+            X,
+            values,
+            gain=None if self.overlap == AUTO else self.overlap,
+            n_intervals=None if self.n_intervals == AUTO else self.n_intervals,
+            max_rows=self.auto_rows,
+            random_state=self.random_state,
+        )
+
+    def _auto_clusterer(self, auto: AutoChoice, n_rows: int) -> SingleLinkage:
+        share = min(1.0, auto.sample_rows / max(n_rows, 1))
+        return SingleLinkage(
+            cut=max(auto.scale, 1e-12),
+            sample_share=None if share >= 1.0 else share,
+            random_state=self.random_state,
+        )
+
     def _settings(self, clusterer: Clusterer, cover: Any) -> dict[str, Any]:
-        return {
+        settings = {
             "filter": repr(self._filter_obj),
             "cover": repr(cover),
             "clusterer": repr(clusterer),
             "noise": self.noise,
         }
+        if self.auto_ is not None:
+            settings["auto"] = self.auto_.as_dict()
+        return settings
 
     def fit(self, X: Any, y: Any = None) -> MapperBuilder:
         """Build the graph of the rows of ``X``; sets :attr:`graph_` and returns self."""
@@ -381,7 +435,12 @@ class MapperBuilder:
             raise unknown_name("cover", self.cover, COVERS)
         check_params("MapperBuilder", self._parameter_constraints, vars(self))
         t0 = time.perf_counter()
-        clusterer = make_clusterer(self.clusterer, **(self.clusterer_params or {}))
+        auto_clusterer = isinstance(self.clusterer, str) and self.clusterer == AUTO
+        clusterer = (
+            SingleLinkage()
+            if auto_clusterer
+            else make_clusterer(self.clusterer, **(self.clusterer_params or {}))
+        )
         if (
             isinstance(clusterer, Clusterer)
             and hasattr(clusterer, "random_state")
@@ -391,7 +450,13 @@ class MapperBuilder:
             clusterer.random_state = self.random_state
             clusterer.check()  # here, not in a worker, if the seed does not suit it
         executor = make_executor(self.n_jobs)
-        cover = self._make_cover()
+        if isinstance(self.cover, str):  # a named cover's errors for given numbers, early
+            probe = self._make_cover(
+                1 if self.n_intervals == AUTO else self.n_intervals,
+                DEFAULT_GAIN if self.overlap == AUTO else self.overlap,
+            )
+            probe._check_limit()
+            check_params(type(probe).__name__, probe._parameter_constraints, vars(probe))
         X = as_matrix(X, min_rows=1)
         if X.shape[0] < clusterer.min_rows:
             msg = (
@@ -409,6 +474,15 @@ class MapperBuilder:
             params.setdefault("random_state", self.random_state)
         self._filter_obj = make_filter(self.filter, **params)
         values = self._filter_obj.fit_transform(X)
+        self.auto_ = self._choose(X, values) if self._wants_auto() else None
+        n_intervals, overlap = self.n_intervals, self.overlap
+        if self.auto_ is not None:
+            d = values.shape[1]
+            n_intervals = self.auto_.n_intervals[0] if d == 1 else self.auto_.n_intervals
+            overlap = self.auto_.gain[0] if d == 1 else self.auto_.gain
+            if auto_clusterer:
+                clusterer = self._auto_clusterer(self.auto_, X.shape[0])
+        cover = self._make_cover(n_intervals, overlap)
         t1 = time.perf_counter()
         elements = cover.fit_transform(values)
         if len(elements) > MAX_GRAPH_NODES:  # each element gives one node or more
@@ -488,6 +562,9 @@ class MapperBuilder:
         t4 = time.perf_counter()
         self.filter_values_ = values
         self.cover_ = cover
+        self.clusterer_ = clusterer
+        self.n_intervals_ = tuple(getattr(cover, "n_intervals_", ()))
+        self.overlap_ = tuple(getattr(cover, "overlaps_", ()))
         self.n_elements_ = len(elements)
         self.n_noise_ = n_noise
         self.timings_ = {
