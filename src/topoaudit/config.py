@@ -131,26 +131,36 @@ class Release:
     _required = ("name", "score")
 
 
+_AUTO = Choice(("auto",))
+
+
 @dataclass(frozen=True)
 class GraphSettings:
-    """The Mapper graph shown for the data's shape."""
+    """The Mapper graph shown for the data's shape.
+
+    ``n_intervals``, ``overlap`` and ``clusterer`` default to ``"auto"``: chosen from the
+    data (:mod:`topoaudit.mapper.auto`). ``resamples`` is the number of resamples behind
+    the confidence of each feature of the shape (0: none computed).
+    """
 
     filter: str = "pca"
     components: int = 1
     cover: str = "uniform"
-    n_intervals: int = 10
-    overlap: float = 0.3
-    clusterer: str = "single_linkage"
+    n_intervals: int | str = "auto"
+    overlap: float | str = "auto"
+    clusterer: str = "auto"
     standardize: bool = True
+    resamples: int = 50
 
     _checks = {
         "filter": [Choice(("pca", "eccentricity", "density", "knn_distance", "score"))],
         "components": [Interval(int, 1, 2)],
         "cover": [Choice(("uniform", "balanced"))],
-        "n_intervals": [Interval(int, 1, MAX_INTERVALS)],
-        "overlap": [Interval(float, 0.0, 1.0, closed="left")],
-        "clusterer": [Choice(("single_linkage", "dbscan", "kmedoids", "hdbscan"))],
+        "n_intervals": [_AUTO, Interval(int, 1, MAX_INTERVALS)],
+        "overlap": [_AUTO, Interval(float, 0.0, 1.0, closed="left")],
+        "clusterer": [Choice(("auto", "single_linkage", "dbscan", "kmedoids", "hdbscan"))],
         "standardize": [_BOOL],
+        "resamples": [Interval(int, 0, 1000)],
     }
     _required = ()
 

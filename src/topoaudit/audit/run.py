@@ -6,6 +6,7 @@ usable alone from Python.
 
 from __future__ import annotations
 
+import os
 import platform
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -29,6 +30,7 @@ from topoaudit.audit.metrics import (
 from topoaudit.audit.regions import partition_graph
 from topoaudit.audit.result import AnalysisResult, build_date
 from topoaudit.audit.search import SearchSettings, search_graphs
+from topoaudit.audit.shape import ShapeFeatureView, describe_shape, place_on_features
 from topoaudit.audit.stability import stability_runs
 from topoaudit.audit.weak import (
     Finding,
@@ -40,7 +42,8 @@ from topoaudit.audit.weak import (
 )
 from topoaudit.config import Config
 from topoaudit.data import Dataset, load_dataset
-from topoaudit.mapper.graph import MapperBuilder, MapperGraph
+from topoaudit.mapper.features import feature_confidence
+from topoaudit.mapper.graph import MapperBuilder
 from topoaudit.mapper.topology import invariants
 
 __all__ = ["Audit", "run_audit"]
@@ -71,15 +74,17 @@ def _versions() -> dict[str, str]:
     return out
 
 
-def _display_graph(
+def _display_builder(
     config: Config,
     X: np.ndarray,
     score: np.ndarray,
     *,
-    n_intervals: int | None = None,
-    overlap: float | None = None,
-) -> MapperGraph:
-    """The graph shown for the data's shape, at the config's settings or others."""
+    n_intervals: Any = None,
+    overlap: Any = None,
+    clusterer: Any = None,
+) -> MapperBuilder:
+    """The fitted builder of the graph shown for the data's shape, at the config's
+    settings (``"auto"``: chosen from the data) or at others."""
     g = config.graph
     if g.filter == "score":
         lens: Any = score
@@ -94,10 +99,47 @@ def _display_graph(
         cover=g.cover,
         n_intervals=g.n_intervals if n_intervals is None else n_intervals,
         overlap=g.overlap if overlap is None else overlap,
-        clusterer=g.clusterer,
+        clusterer=g.clusterer if clusterer is None else clusterer,
         random_state=config.seed,
     )
-    return builder.fit(X).graph_
+    return builder.fit(X)
+
+
+def _settings_grid(
+    config: Config, X: np.ndarray, score: np.ndarray, builder: MapperBuilder
+) -> list[dict[str, Any]]:
+    """The shown graph's invariants at the stability offsets around the settings used."""
+    a = config.audit
+    base_k, base_o = builder.n_intervals_[0], builder.overlap_[0]
+    grid = []
+    for di in a.stability_intervals:
+        for do in a.stability_overlaps:
+            k = max(1, base_k + di)
+            o = float(np.clip(base_o + do, 0.0, 0.9))
+            other = _display_builder(
+                config, X, score, n_intervals=k, overlap=o, clusterer=builder.clusterer_
+            )
+            grid.append({"n_intervals": k, "overlap": o, **invariants(other.graph_).as_dict()})
+    return grid
+
+
+def _shape(
+    config: Config, ds: Dataset, X: np.ndarray, builder: MapperBuilder
+) -> tuple[list[ShapeFeatureView], dict[str, Any]]:
+    """The features of the shown graph, described, and the record of how sure they are."""
+    n = config.graph.resamples
+    jobs = 2 if n >= 10 and ds.n_rows >= 2000 and (os.cpu_count() or 1) >= 2 else None
+    summary = feature_confidence(builder, X, n_resamples=n, executor=jobs, random_state=config.seed)
+    views = describe_shape(summary, builder.graph_.members, ds.X, list(ds.feature_names))
+    record = {
+        "chosen": builder.auto_.as_dict() if builder.auto_ is not None else None,
+        "n_intervals": list(builder.n_intervals_),
+        "overlap": list(builder.overlap_),
+        "resamples": summary.n_resamples,
+        "resample_rows": summary.resample_rows,
+        "features": [v.as_dict() for v in views],
+    }
+    return views, record
 
 
 def _metrics(
@@ -155,11 +197,14 @@ def run_audit(
     score = ds.scores[rel.name]
     X = StandardScaler().fit_transform(ds.X) if config.graph.standardize else ds.X
 
-    say(f"building the graph of {ds.n_rows} rows x {ds.X.shape[1]} features")
-    graph = _display_graph(config, X, score)
+    say(f"step 1 of 8: building the graph of {ds.n_rows} rows x {ds.X.shape[1]} features")
+    builder = _display_builder(config, X, score)
+    graph = builder.graph_
     partition = partition_graph(graph, random_state=seed)
+    say(f"step 2 of 8: scoring the features of the shape on {config.graph.resamples} resamples")
+    shape_views, shape = _shape(config, ds, X, builder)
 
-    say("computing metrics")
+    say("step 3 of 8: computing metrics")
     every = np.arange(ds.n_rows)
     overall = _metrics(ds, score, rel.threshold, every, 200, seed)
 
@@ -169,19 +214,25 @@ def run_audit(
         losses = regression_losses(ds.target, score)
     discovery = split_halves(ds.n_rows, ds.target if ds.task == "binary" else None, seed)
     settings = SearchSettings(n_intervals=a.search_intervals, node_rows=a.node_rows, folds=a.folds)
-    say("searching for weak regions (discovery half)")
+    say("step 4 of 8: searching for weak regions (discovery half)")
     searched = search_graphs(X, losses, discovery, settings, random_state=seed)
     findings = find_weak_regions(
         searched, losses, discovery, fdr=a.fdr, min_rows=a.min_rows, random_state=seed
     )
     weak = merge_confirmed(findings)
-    say(f"{sum(f.tested for f in findings)} candidates tested, {len(weak)} weak regions confirmed")
+    say(
+        f"step 4 of 8: {sum(f.tested for f in findings)} candidates tested, "
+        f"{len(weak)} weak regions confirmed"
+    )
 
     weak_out = []
     for i, f in enumerate(weak, start=1):
         mask = np.zeros(ds.n_rows, dtype=bool)
         mask[f.rows] = True
-        say(f"describing weak region W{i} and testing a local model there")
+        say(
+            f"step 5 of 8: describing weak region W{i} ({i} of {len(weak)}) and testing a "
+            "local model there"
+        )
         desc = describe_region(mask, ds.frame, ds.X, ds.feature_names, random_state=seed)
         local = local_model_test(
             ds.X[f.rows],
@@ -201,6 +252,7 @@ def run_audit(
                 "metrics": _metrics(ds, score, rel.threshold, f.rows, 0, seed),
                 "description": desc.as_dict(),
                 "local_model": local.as_dict(),
+                "on_feature": place_on_features(f.rows, shape_views, graph.members),
             }
         )
 
@@ -226,19 +278,14 @@ def run_audit(
             min_rows=a.min_rows,
             match_jaccard=a.match_jaccard,
             random_state=seed,
-            progress=say,
+            progress=lambda message: say(f"step 6 of 8: {message}"),
         )
     for j, w in enumerate(weak_out):
         found = [r.found[j] for r in runs]
         w["stability"] = sum(found) / len(found) if found else None
 
-    grid = []
-    for di in a.stability_intervals:
-        for do in a.stability_overlaps:
-            k = max(1, config.graph.n_intervals + di)
-            o = float(np.clip(config.graph.overlap + do, 0.0, 0.9))
-            g2 = _display_graph(config, X, score, n_intervals=k, overlap=o)
-            grid.append({"n_intervals": k, "overlap": o, **invariants(g2).as_dict()})
+    say("step 7 of 8: the shown graph at other cover settings")
+    grid = _settings_grid(config, X, score, builder)
 
     # per-region table and per-node statistics
     regions = []
@@ -265,6 +312,7 @@ def run_audit(
             "id": v,
             "rows": int(m.size),
             "region": int(partition.node_region[v]),
+            "filter": float(graph.node_filter[v, 0]),
             "mean_score": float(score[m].mean()),
             "loss": float(error[m].mean()),
             "expected_loss": float(losses[0].expected[m].mean()),
@@ -285,7 +333,7 @@ def run_audit(
 
     comparison = None
     if baseline is not None:
-        say(f"comparing release {rel.name} with {baseline.name}")
+        say(f"step 8 of 8: comparing release {rel.name} with {baseline.name}")
         base_score = ds.scores[baseline.name]
         if ds.task == "binary":
             before = binary_losses(ds.target, base_score, baseline.threshold)[0].observed
@@ -354,6 +402,7 @@ def run_audit(
             "invariants": invariants(graph).as_dict(),
             "regions": partition.n_regions,
             "grid": grid,
+            "shape": shape,
         },
         search=[
             {

@@ -47,6 +47,7 @@ from typing import Any
 import numpy as np
 
 from topoaudit._validation import random_generator
+from topoaudit.mapper._distances import iter_sq_distances, kth_distance
 
 __all__ = [
     "DEFAULT_GAIN",
@@ -132,8 +133,8 @@ def neighbourhood_scale(
 ) -> tuple[float, int]:
     """``δ``: the mean Hausdorff distance from ``X`` to ``n_subsamples`` subsamples.
 
-    Returns ``(δ, m)``. Cost: ``n_subsamples`` nearest-neighbour queries of all rows
-    against ``m`` rows (a k-d tree; O(n log m) each in low dimensions).
+    Returns ``(δ, m)``. Cost: ``n_subsamples`` blocked nearest-row searches of all rows
+    against ``m`` rows, O(n m d) each at matrix-product speed.
 
     Examples
     --------
@@ -141,8 +142,6 @@ def neighbourhood_scale(
     >>> neighbourhood_scale(X, n_subsamples=5)[1]  # m = 10 / ln(10)^1.001
     4
     """
-    from sklearn.neighbors import KDTree
-
     X = np.asarray(X, dtype=np.float64)
     n = X.shape[0]
     if n < 3:
@@ -152,13 +151,14 @@ def neighbourhood_scale(
     total = 0.0
     for _ in range(n_subsamples):
         picked = np.sort(rng.choice(n, size=m, replace=False))
-        dist, _ = KDTree(X[picked]).query(X, k=1)
-        total += float(dist.max())
+        total += float(kth_distance(X, X[picked], 1, self_included=False).max())
     return total / n_subsamples, m
 
 
 def filter_spread(X: np.ndarray, values: np.ndarray, scale: float) -> np.ndarray:
     """Per filter dimension, the largest ``|f(x_i) - f(x_j)|`` over rows within ``scale``.
+
+    Cost: O(n² d) by blocks of distances, O(n) memory per block row.
 
     Examples
     --------
@@ -166,21 +166,17 @@ def filter_spread(X: np.ndarray, values: np.ndarray, scale: float) -> np.ndarray
     >>> filter_spread(X, X * 2, 1.5).tolist()
     [2.0]
     """
-    from sklearn.neighbors import KDTree
-
     X = np.asarray(X, dtype=np.float64)
     values = np.asarray(values, dtype=np.float64).reshape(X.shape[0], -1)
     best = np.zeros(values.shape[1])
     if X.shape[0] < 2 or scale <= 0:
         return best
-    tree = KDTree(X)
-    step = 2048
-    for start in range(0, X.shape[0], step):
-        block = tree.query_radius(X[start : start + step], r=scale)
-        for offset, neighbours in enumerate(block):
-            if neighbours.size > 1:
-                diff = np.abs(values[neighbours] - values[start + offset]).max(axis=0)
-                np.maximum(best, diff, out=best)
+    limit = scale * scale * (1 + 1e-12)
+    for start, stop, d2 in iter_sq_distances(X, X, max_bytes=16 * 2**20):
+        near = d2 <= limit
+        for j in range(values.shape[1]):
+            diff = np.abs(values[start:stop, j, None] - values[None, :, j])
+            best[j] = max(best[j], float(np.max(diff, where=near, initial=0.0)))
     return best
 
 

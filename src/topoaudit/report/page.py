@@ -38,6 +38,7 @@ from pathlib import Path
 from typing import Any
 
 import networkx as nx
+import numpy as np
 import pandas as pd
 
 from topoaudit import limits
@@ -47,6 +48,7 @@ from topoaudit.report.text import (
     count,
     escape,
     html_text,
+    plural,
     pvalue,
     rate,
     script_json,
@@ -85,18 +87,68 @@ class Page:
     charts: dict[str, dict[str, Any]]
 
 
+def _component_positions(g: nx.Graph, nodes: list[Any], seed: int) -> dict[Any, np.ndarray]:
+    """Positions of one component: Kamada-Kawai (loops drawn as open rings, trees spread
+    out) from a circular start, or a seeded spring layout above 400 nodes; then turned so
+    that the filter increases from left to right, and scaled to unit height or width."""
+    sub = g.subgraph(nodes)
+    if len(nodes) == 1:
+        return {nodes[0]: np.zeros(2)}
+    if len(nodes) <= 400:
+        start = nx.circular_layout(sorted(nodes))
+        pos = nx.kamada_kawai_layout(sub, pos=start, weight=None)
+    else:
+        pos = nx.spring_layout(sub, seed=seed, iterations=200)
+    xy = np.array([pos[v] for v in nodes], dtype=np.float64)
+    xy -= xy.mean(axis=0)
+    f = np.array([g.nodes[v].get("filter", 0.0) or 0.0 for v in nodes], dtype=np.float64)
+    if np.ptp(f) > 0 and np.ptp(xy) > 0:
+        # the direction in the drawing along which the filter grows, turned to +x
+        direction, *_ = np.linalg.lstsq(xy, f - f.mean(), rcond=None)
+        if np.linalg.norm(direction) > 0:
+            c, s = direction / np.linalg.norm(direction)
+            xy = xy @ np.array([[c, -s], [s, c]])
+    span = max(float(np.ptp(xy[:, 0])), float(np.ptp(xy[:, 1])), 1e-9)
+    xy /= span
+    return {v: xy[i] for i, v in enumerate(nodes)}
+
+
 def node_layout(graph: dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
-    """Node positions from networkx's spring layout with a fixed seed, rounded so the
-    spec is stable."""
+    """Node positions: each connected component laid out on its own (see
+    :func:`_component_positions`), scaled by the square root of its node count, and the
+    components packed side by side in rows, largest (by rows) first. Deterministic; the
+    coordinates are rounded so the spec is stable."""
     g = nx.Graph()
-    g.add_nodes_from(n["id"] for n in graph["nodes"])
+    for n in graph["nodes"]:
+        g.add_node(n["id"], rows=n["rows"], filter=n.get("filter"))
     g.add_edges_from((e["source"], e["target"]) for e in graph["links"])
-    pos = nx.spring_layout(g, seed=seed, iterations=200) if g.number_of_nodes() else {}
+    components = sorted(
+        (sorted(c) for c in nx.connected_components(g)),
+        key=lambda c: (-sum(g.nodes[v]["rows"] for v in c), len(c) == 1, c[0]),
+    )
+    placed: dict[Any, tuple[float, float]] = {}
+    if components:
+        scale = [max(1.0, np.sqrt(len(c))) for c in components]
+        width = max(scale[0] * 1.6, np.sqrt(sum(s * s for s in scale)) * 1.3)
+        x = y = row_height = 0.0
+        gap = 0.6
+        for comp, s in zip(components, scale, strict=True):
+            pos = _component_positions(g, comp, seed)
+            xy = np.array([pos[v] for v in comp]) * s
+            w = float(np.ptp(xy[:, 0])) if len(comp) > 1 else 0.0
+            h = float(np.ptp(xy[:, 1])) if len(comp) > 1 else 0.0
+            if x > 0 and x + w > width:
+                x, y, row_height = 0.0, y - row_height - gap, 0.0
+            left, top = xy[:, 0].min(), xy[:, 1].max()
+            for v, (px, py) in zip(comp, xy, strict=True):
+                placed[v] = (x + px - left, y + py - top)
+            x += w + gap
+            row_height = max(row_height, h)
     return pd.DataFrame(
         {
-            "node": list(pos),
-            "x": [round(float(p[0]), 4) for p in pos.values()],
-            "y": [round(float(p[1]), 4) for p in pos.values()],
+            "node": list(placed),
+            "x": [round(float(p[0]), 4) for p in placed.values()],
+            "y": [round(float(p[1]), 4) for p in placed.values()],
         }
     )
 
@@ -258,6 +310,96 @@ def _description(desc: dict[str, Any]) -> list[str]:
     return lines
 
 
+def _settings_sentence(shape: dict[str, Any], config: dict[str, Any]) -> str:
+    """How the shown graph's settings came about, in words."""
+    k, g = shape["n_intervals"][0], shape["overlap"][0]
+    chosen = shape.get("chosen")
+    cover = f"{plural(k, 'interval')} overlapping by {g * 100:.0f}%"
+    if not chosen:
+        return f"The graph's settings were given in the configuration: {cover}."
+    given = config["graph"]
+    parts = [
+        "The graph's settings were chosen from the data by the rule of Carrière, Michel and "
+        f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g}, the mean distance from "
+        f"the {count(chosen['sample_rows'])} rows"
+        + (" (a seeded sample)" if chosen["sample_rows"] < chosen.get("rows", 0) else "")
+        + f" to the nearest of {count(chosen['subsample_rows'])} rows drawn from them, at its "
+        f"largest over the rows, averaged over {plural(chosen['n_subsamples'], 'draw')}"
+    ]
+    if given["n_intervals"] == "auto":
+        parts.append(
+            f"an interval length of {chosen['interval_length'][0]:.3g}: the filter's largest "
+            f"change between rows within that scale ({chosen['filter_spread'][0]:.3g}) divided "
+            f"by the overlap {chosen['gain'][0]:g}"
+        )
+    parts.append(f"which gives {cover}")
+    if given["clusterer"] == "auto":
+        parts.append("each interval's rows are clustered by single linkage cut at the scale")
+    return "; ".join(parts) + "."
+
+
+def _feature_where(f: dict[str, Any]) -> str:
+    if f["kind"] == "loop":
+        cols = ", ".join(escape(c["column"]) for c in f["columns"])
+        return f"goes round in {cols}" if cols else ""
+    return ", ".join(
+        f"{escape(c['column'])} {c['direction']} ({signed(c['smd'], 1)})" for c in f["columns"]
+    )
+
+
+def _shape_section(a: dict[str, Any]) -> list[str]:
+    """The features of the shape: what the graph shows and how sure each feature is."""
+    shape = a["graph"].get("shape")
+    if not shape:
+        return []
+    lines = ["### Features of the shape", "", _settings_sentence(shape, a["config"]), ""]
+    n = shape["resamples"]
+    if n:
+        lines += [
+            f"How sure: each feature was checked on {plural(n, 'resample')} of "
+            f"{count(shape['resample_rows'])} rows drawn without replacement, the settings "
+            "chosen again on each. A feature's confidence is the share of resamples whose "
+            "graph lies closer to this one than half the feature's extent along the filter "
+            "(bottleneck distance between extended persistence diagrams, after Carrière, "
+            "Michel and Oudot, 2018): in those the feature is still there. Below 95%, "
+            "treat it as possibly an accident of the sample.",
+            "",
+        ]
+    else:
+        lines += ["No resamples were drawn: the features below carry no confidence.", ""]
+    lines += [
+        "| feature | rows | filter range | what sets it apart | how sure |",
+        "|---|---|---|---|---|",
+    ]
+    for f in shape["features"]:
+        conf = "n/a" if f["confidence"] is None else f"{f['confidence'] * 100:.0f}%"
+        where = "" if f["main"] else _feature_where(f)
+        lines.append(
+            f"| {f['name']} | {count(f['rows'])} | {f['filter_low']:.2f} to "
+            f"{f['filter_high']:.2f} | {where} | {conf} |"
+        )
+    lines += [
+        "",
+        "A loop's columns are those that change most from node to node round it; a flare's "
+        "and a separate group's are those whose standardised mean difference from all other "
+        "rows is largest.",
+        "",
+    ]
+    return lines
+
+
+def _on_feature(w: dict[str, Any]) -> list[str]:
+    place = w.get("on_feature")
+    if not place:
+        return []
+    where = f"at the tip of {place['feature']}" if place["at_tip"] else f"on {place['feature']}"
+    return [
+        f"It lies {where}: {place['share'] * 100:.0f}% of its rows are in that feature of "
+        "the shape (see the shape of the data).",
+        "",
+    ]
+
+
 def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     """Build the page of analysis ``a`` (the parsed analysis.json)."""
     key, label = _headline(a["task"])
@@ -334,6 +476,7 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             )
             + ".",
             "",
+            *_on_feature(w),
             "| | discovery half | confirmation half |",
             "|---|---|---|",
             f"| rows | {count(d['rows'])} | {count(c['rows'])} |",
@@ -393,9 +536,10 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     lines += [
         "## The shape of the data",
         "",
-        f"{inv['n_nodes']} nodes, {inv['n_edges']} edges, {inv['n_components']} connected "
-        f"component(s), cycle rank {inv['cycle_rank']}, {inv['n_leaves']} leaves, "
-        f"{inv['n_branch_points']} branch points. Node size shows rows; colour shows the "
+        f"{plural(inv['n_nodes'], 'node')}, {plural(inv['n_edges'], 'edge')}, "
+        f"{plural(inv['n_components'], 'connected component')}, cycle rank "
+        f"{inv['cycle_rank']}, {plural(inv['n_leaves'], 'leaf', 'leaves')}, "
+        f"{plural(inv['n_branch_points'], 'branch point')}. Node size shows rows; colour shows the "
         "metric picked in the selector. Weak regions were searched for on separate search "
         "graphs (see how to reproduce); here a node is ringed when at least half of its "
         "rows belong to a weak region.",
@@ -417,6 +561,7 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
             "",
         ]
     lines.append(_chart_block("graph", gchart, "Mapper graph of the validation data"))
+    lines += _shape_section(a)
 
     shown_regions = [r for r in a["regions"] if not _small(r["rows"])]
     reg = pd.DataFrame(

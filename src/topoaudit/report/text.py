@@ -24,7 +24,17 @@ import math
 import re
 from typing import Any
 
-__all__ = ["code_fence", "count", "escape", "html_text", "pvalue", "rate", "script_json", "signed"]
+__all__ = [
+    "code_fence",
+    "count",
+    "escape",
+    "html_text",
+    "plural",
+    "pvalue",
+    "rate",
+    "script_json",
+    "signed",
+]
 
 # Markdown punctuation that is backslash-escaped; < > & " ' become HTML entities instead.
 _MD_SPECIAL = re.compile(r"([\\`*_{}\[\]()#+!|~-])")
@@ -109,3 +119,15 @@ def count(value: Any) -> str:
 def pvalue(value: Any) -> str:
     """p-values in scientific notation with 2 significant digits."""
     return "n/a" if _missing(value) else f"{float(value):.1e}"
+
+
+def plural(n: Any, word: str, words: str | None = None) -> str:
+    """``"1 loop"``, ``"2 loops"``, ``"1,200 rows"``: the count and the word that fits it.
+
+    Examples
+    --------
+    >>> plural(1, "branch point"), plural(3, "branch point"), plural(2, "leaf", "leaves")
+    ('1 branch point', '3 branch points', '2 leaves')
+    """
+    many = words if words is not None else word + "s"
+    return f"{count(n)} {word if n == 1 else many}"

@@ -1,0 +1,160 @@
+"""The features of the shown graph in the user's terms, and where each weak region lies.
+
+The graph engine (:mod:`topoaudit.mapper.features`) lists the components, loops and
+flares of the graph with their bootstrap confidence; this module adds what a reviewer
+needs to read them: the rows each feature holds, the filter range it spans, the columns
+that set it apart, and for each weak region the feature it lies on.
+
+* a **separate group** (a component other than the one with most rows) and a **flare**
+  are described by the columns whose standardised mean difference between the feature's
+  rows and all other rows is largest (as in :mod:`topoaudit.audit.describe`);
+* a **loop** is described by the columns that change most from node to node round it:
+  the share of each column's variance over the loop's rows that lies between its nodes
+  (a one-way analysis of variance, eta squared).
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Any
+
+import numpy as np
+
+from topoaudit.audit.describe import _smd
+from topoaudit.mapper.features import ShapeSummary
+
+__all__ = ["ShapeFeatureView", "describe_shape", "place_on_features"]
+
+_TOP_COLUMNS = 3
+_ON_FEATURE_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class ShapeFeatureView:
+    """One feature of the shape as the page and ``analysis.json`` show it."""
+
+    name: str
+    kind: str
+    confidence: float | None
+    extent: float
+    filter_low: float
+    filter_high: float
+    nodes: tuple[int, ...]
+    rows: int
+    tip_node: int | None
+    columns: tuple[dict[str, Any], ...]
+    main: bool = False
+
+    def as_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+def _rows_of(members: tuple[np.ndarray, ...], nodes: tuple[int, ...]) -> np.ndarray:
+    if not nodes:
+        return np.zeros(0, dtype=np.int64)
+    return np.unique(np.concatenate([members[v] for v in nodes]))
+
+
+def _contrast_columns(X: np.ndarray, names: list[str], rows: np.ndarray) -> list[dict[str, Any]]:
+    inside = np.zeros(X.shape[0], dtype=bool)
+    inside[rows] = True
+    if inside.all() or not inside.any():
+        return []
+    scores = [(abs(_smd(X[inside, j], X[~inside, j])), j) for j in range(X.shape[1])]
+    out = []
+    for _, j in sorted(scores, key=lambda t: (-t[0], t[1]))[:_TOP_COLUMNS]:
+        smd = _smd(X[inside, j], X[~inside, j])
+        out.append({"column": names[j], "smd": smd, "direction": "higher" if smd > 0 else "lower"})
+    return out
+
+
+def _loop_columns(
+    X: np.ndarray, names: list[str], members: tuple[np.ndarray, ...], nodes: tuple[int, ...]
+) -> list[dict[str, Any]]:
+    parts = [members[v] for v in nodes]
+    rows = np.concatenate(parts)
+    total = X[rows].var(axis=0) * rows.size
+    between = np.zeros(X.shape[1])
+    grand = X[rows].mean(axis=0)
+    for m in parts:
+        between += m.size * (X[m].mean(axis=0) - grand) ** 2
+    eta = np.divide(between, total, out=np.zeros_like(between), where=total > 0)
+    order = sorted(range(X.shape[1]), key=lambda j: (-eta[j], j))[:_TOP_COLUMNS]
+    return [{"column": names[j], "eta_squared": float(eta[j])} for j in order]
+
+
+def describe_shape(
+    summary: ShapeSummary,
+    members: tuple[np.ndarray, ...],
+    X: np.ndarray,
+    names: list[str],
+) -> list[ShapeFeatureView]:
+    """Name and describe each feature of ``summary`` (``members``: the graph's node rows,
+    ``X``: the feature matrix in the user's units).
+
+    Features are numbered within their kind by extent, largest first: "loop 1",
+    "flare 2"; the component with most rows is "the main component", the others are
+    "separate group 1", "separate group 2"... Components of a single node (no extent in
+    the filter) are left out.
+    """
+    out: list[ShapeFeatureView] = []
+    components = [f for f in summary.of_kind("component")]
+    main = max(components, key=lambda f: (_rows_of(members, f.nodes).size, -min(f.nodes)))
+    counters = {"component": 0, "loop": 0, "flare": 0}
+    label = {"component": "separate group", "loop": "loop", "flare": "flare"}
+    for kind in ("component", "loop", "flare"):
+        ranked = sorted(summary.of_kind(kind), key=lambda f: (-f.extent, f.nodes))
+        for f in ranked:
+            is_main = f is main
+            if kind == "component" and not is_main and len(f.nodes) < 2:
+                continue
+            rows = _rows_of(members, f.nodes)
+            if kind == "loop":
+                columns = _loop_columns(X, names, members, f.nodes)
+            else:
+                columns = _contrast_columns(X, names, rows)
+            if is_main:
+                name = "the main component"
+            else:
+                counters[kind] += 1
+                name = f"{label[kind]} {counters[kind]}"
+            out.append(
+                ShapeFeatureView(
+                    name=name,
+                    kind=kind,
+                    confidence=f.confidence,
+                    extent=f.extent,
+                    filter_low=min(f.birth, f.death),
+                    filter_high=max(f.birth, f.death),
+                    nodes=f.nodes,
+                    rows=int(rows.size),
+                    tip_node=f.tip,
+                    columns=tuple(columns),
+                    main=is_main,
+                )
+            )
+    return out
+
+
+def place_on_features(
+    rows: np.ndarray, features: list[ShapeFeatureView], members: tuple[np.ndarray, ...]
+) -> dict[str, Any] | None:
+    """The most specific feature (fewest rows) holding at least half of ``rows``, with
+    that share, and whether it is the feature's tip (at least half of the tip node's rows
+    are in ``rows``); None when no feature other than the main component holds half."""
+    rows = np.asarray(rows)
+    best = None
+    for f in features:
+        if f.main:
+            continue
+        share = float(np.isin(rows, _rows_of(members, f.nodes)).mean()) if rows.size else 0.0
+        if share >= _ON_FEATURE_SHARE and (best is None or f.rows < best[0].rows):
+            best = (f, share)
+    if best is None:
+        return None
+    f, share = best
+    at_tip = False
+    if f.tip_node is not None:
+        tip_rows = members[f.tip_node]
+        at_tip = bool(np.isin(tip_rows, rows).mean() >= _ON_FEATURE_SHARE)
+    return {"feature": f.name, "kind": f.kind, "share": share, "at_tip": at_tip}
