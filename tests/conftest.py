@@ -21,6 +21,13 @@ FIXTURE_ROWS = 3000
 LIGHT_AUDIT = (
     "\n[audit]\nstability_intervals = [0, 2]\nstability_overlaps = [0.0]\nbootstrap_resamples = 1\n"
 )
+#: few resamples behind the confidence of the shape's features: fast audits for tests
+LIGHT_GRAPH = 'filter = "pca"\nresamples = 8\n'
+
+
+def light(config_text: str) -> str:
+    """The demo config with the light audit and shape settings."""
+    return config_text.replace('filter = "pca"', LIGHT_GRAPH.strip(), 1) + LIGHT_AUDIT
 
 
 @contextlib.contextmanager
@@ -57,6 +64,6 @@ def fixture_archive(tmp_path_factory):
     with fixed_build_date():
         folder = tmp_path_factory.mktemp("fixture")
         config_path = write_demo_project(folder / "project", FIXTURE_ROWS, seed=7)
-        config_path.write_text(config_path.read_text(encoding="utf-8") + LIGHT_AUDIT)
+        config_path.write_text(light(config_path.read_text(encoding="utf-8")))
         bundles, archive = audit_and_publish(config_path, folder)
         yield folder, bundles, archive

@@ -20,7 +20,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.conftest import LIGHT_AUDIT
+from tests.conftest import light
 from topoaudit.demo import write_demo_project
 from topoaudit.report.archive import CHECKSUMS, bundle_findings, verify_archive, write_checksums
 
@@ -173,7 +173,7 @@ def test_site_build_killed_anywhere_leaves_the_old_site_or_the_new_one(fixture_a
 
 def test_audit_killed_while_writing_leaves_no_bundle_and_the_next_run_succeeds(tmp_path):
     config = write_demo_project(tmp_path / "project", 800, seed=3)
-    config.write_text(config.read_text() + LIGHT_AUDIT, encoding="utf-8")
+    config.write_text(light(config.read_text()), encoding="utf-8")
     probe = tmp_path / "probe"
     probe.mkdir()
     out = ["audit", str(config), "--quiet", "--release", "2026.1", "--out"]

@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tests.conftest import LIGHT_AUDIT, audit_and_publish, fixed_build_date
+from tests.conftest import audit_and_publish, fixed_build_date, light
 from topoaudit import limits
 from topoaudit.demo import DEMO_CONFIG, FEATURES, make_meters
 from topoaudit.report.page import MIN_CELL_ROWS, build_page, drawn_graph
@@ -86,7 +86,7 @@ def leak_site(tmp_path_factory):
         project.mkdir()
         frame = _meters()
         frame.to_csv(project / "meters.csv", index=False)
-        (project / "audit.toml").write_text(DEMO_CONFIG + LIGHT_AUDIT, encoding="utf-8")
+        (project / "audit.toml").write_text(light(DEMO_CONFIG), encoding="utf-8")
         bundles, archive = audit_and_publish(project / "audit.toml", root)
         site = build_site(archive, root / "site")
         yield frame, bundles, site

@@ -84,6 +84,7 @@ score = {_q(RENAMED["score_2026_2"])}
 filter = "eccentricity"
 n_intervals = 12
 overlap = 0.3
+resamples = 8
 
 [audit]
 stability_intervals = [0, 2]
