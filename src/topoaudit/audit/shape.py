@@ -5,9 +5,12 @@ flares of the graph with their bootstrap confidence; this module adds what a rev
 needs to read them: the rows each feature holds, the filter range it spans, the columns
 that set it apart, and for each weak region the feature it lies on.
 
-* a **separate group** (a component other than the one with most rows) and a **flare**
-  are described by the columns whose standardised mean difference between the feature's
-  rows and all other rows is largest (as in :mod:`topoaudit.audit.describe`);
+* a **separate group** (a component other than the one with most rows) is described by
+  the columns whose standardised mean difference between its rows and all other rows is
+  largest (as in :mod:`topoaudit.audit.describe`);
+* a **flare** by the columns whose standardised mean difference between the rows of its
+  tip node and those of the node where it joins the rest is largest: what changes along
+  it;
 * a **loop** is described by the columns that change most from node to node round it:
   the share of each column's variance over the loop's rows that lies between its nodes
   (a one-way analysis of variance, eta squared).
@@ -55,17 +58,26 @@ def _rows_of(members: tuple[np.ndarray, ...], nodes: tuple[int, ...]) -> np.ndar
     return np.unique(np.concatenate([members[v] for v in nodes]))
 
 
-def _contrast_columns(X: np.ndarray, names: list[str], rows: np.ndarray) -> list[dict[str, Any]]:
+def _contrast_columns(
+    X: np.ndarray, names: list[str], rows: np.ndarray, against: np.ndarray | None = None
+) -> list[dict[str, Any]]:
+    """The columns that set ``rows`` apart from ``against`` (default: all other rows)."""
     inside = np.zeros(X.shape[0], dtype=bool)
     inside[rows] = True
-    if inside.all() or not inside.any():
+    if against is None:
+        other = ~inside
+    else:
+        other = np.zeros(X.shape[0], dtype=bool)
+        other[against] = True
+        other &= ~inside
+    if not other.any() or not inside.any():
         return []
-    scores = [(abs(_smd(X[inside, j], X[~inside, j])), j) for j in range(X.shape[1])]
-    out = []
-    for _, j in sorted(scores, key=lambda t: (-t[0], t[1]))[:_TOP_COLUMNS]:
-        smd = _smd(X[inside, j], X[~inside, j])
-        out.append({"column": names[j], "smd": smd, "direction": "higher" if smd > 0 else "lower"})
-    return out
+    smds = [_smd(X[inside, j], X[other, j]) for j in range(X.shape[1])]
+    order = sorted(range(X.shape[1]), key=lambda j: (-abs(smds[j]), j))[:_TOP_COLUMNS]
+    return [
+        {"column": names[j], "smd": smds[j], "direction": "higher" if smds[j] > 0 else "lower"}
+        for j in order
+    ]
 
 
 def _loop_columns(
@@ -111,6 +123,8 @@ def describe_shape(
             rows = _rows_of(members, f.nodes)
             if kind == "loop":
                 columns = _loop_columns(X, names, members, f.nodes)
+            elif kind == "flare" and f.tip is not None and f.root is not None:
+                columns = _contrast_columns(X, names, members[f.tip], members[f.root])
             else:
                 columns = _contrast_columns(X, names, rows)
             if is_main:

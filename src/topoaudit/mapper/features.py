@@ -88,6 +88,8 @@ class ShapeFeature:
         The nodes it holds: a component's nodes, a loop's cycle, a flare's branch.
     tip : int or None
         A flare's extreme node (the tip of the branch), else None.
+    root : int or None
+        The node of degree 3 or more where a flare joins the rest, else None.
     confidence : float or None
         The bootstrap confidence, when computed.
     """
@@ -99,6 +101,7 @@ class ShapeFeature:
     nodes: tuple[int, ...]
     tip: int | None = None
     confidence: float | None = None
+    root: int | None = None
 
     @property
     def extent(self) -> float:
@@ -312,6 +315,7 @@ def _leaf_flares(values: np.ndarray, adj: list[list[int]]) -> list[ShapeFeature]
                 death=float(values[current]),
                 nodes=tuple(sorted(path)),
                 tip=leaf,
+                root=current,
             )
         )
     return out

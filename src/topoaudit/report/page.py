@@ -103,8 +103,9 @@ def _component_positions(g: nx.Graph, nodes: list[Any], seed: int) -> dict[Any, 
     xy -= xy.mean(axis=0)
     f = np.array([g.nodes[v].get("filter", 0.0) or 0.0 for v in nodes], dtype=np.float64)
     if np.ptp(f) > 0 and np.ptp(xy) > 0:
-        # the direction in the drawing along which the filter grows, turned to +x
-        direction, *_ = np.linalg.lstsq(xy, f - f.mean(), rcond=None)
+        # the direction in the drawing along which the filter grows (the covariance of
+        # position and filter), turned to +x
+        direction = xy.T @ (f - f.mean())
         if np.linalg.norm(direction) > 0:
             c, s = direction / np.linalg.norm(direction)
             xy = xy @ np.array([[c, -s], [s, c]])
@@ -310,21 +311,22 @@ def _description(desc: dict[str, Any]) -> list[str]:
     return lines
 
 
-def _settings_sentence(shape: dict[str, Any], config: dict[str, Any]) -> str:
+def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int) -> str:
     """How the shown graph's settings came about, in words."""
     k, g = shape["n_intervals"][0], shape["overlap"][0]
     chosen = shape.get("chosen")
+    sampled = bool(chosen) and chosen["sample_rows"] < rows
     cover = f"{plural(k, 'interval')} overlapping by {g * 100:.0f}%"
     if not chosen:
         return f"The graph's settings were given in the configuration: {cover}."
     given = config["graph"]
     parts = [
         "The graph's settings were chosen from the data by the rule of Carrière, Michel and "
-        f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g}, the mean distance from "
-        f"the {count(chosen['sample_rows'])} rows"
-        + (" (a seeded sample)" if chosen["sample_rows"] < chosen.get("rows", 0) else "")
-        + f" to the nearest of {count(chosen['subsample_rows'])} rows drawn from them, at its "
-        f"largest over the rows, averaged over {plural(chosen['n_subsamples'], 'draw')}"
+        f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g} (how far the farthest "
+        f"of {count(chosen['sample_rows'])} rows"
+        + (", a seeded sample of all rows," if sampled else "")
+        + f" lies from the nearest of {count(chosen['subsample_rows'])} of them drawn at "
+        f"random, averaged over {plural(chosen['n_subsamples'], 'draw')})"
     ]
     if given["n_intervals"] == "auto":
         parts.append(
@@ -352,7 +354,8 @@ def _shape_section(a: dict[str, Any]) -> list[str]:
     shape = a["graph"].get("shape")
     if not shape:
         return []
-    lines = ["### Features of the shape", "", _settings_sentence(shape, a["config"]), ""]
+    rows = a["provenance"]["rows"]
+    lines = ["### Features of the shape", "", _settings_sentence(shape, a["config"], rows), ""]
     n = shape["resamples"]
     if n:
         lines += [
@@ -378,21 +381,42 @@ def _shape_section(a: dict[str, Any]) -> list[str]:
             f"| {f['name']} | {count(f['rows'])} | {f['filter_low']:.2f} to "
             f"{f['filter_high']:.2f} | {where} | {conf} |"
         )
+    narrow = [
+        f["name"]
+        for f in shape["features"]
+        if f["kind"] == "component" and not f["main"] and (f["confidence"] or 0) < 0.95
+    ]
+    if narrow and n:
+        lines += [
+            "",
+            f"The confidence of {_join(narrow)} is low: it measures a feature's extent along "
+            "the filter, and a group narrow along the filter scores low even when it lies "
+            "far from the other rows in other columns (see what sets it apart).",
+        ]
     lines += [
         "",
-        "A loop's columns are those that change most from node to node round it; a flare's "
-        "and a separate group's are those whose standardised mean difference from all other "
-        "rows is largest.",
+        "A loop's columns are those that change most from node to node round it (the share "
+        "of their variance between nodes); a flare's, those that change most from where it "
+        "joins the rest to its tip, and a separate group's, those that differ most from all "
+        "other rows (standardised mean differences, in brackets).",
         "",
     ]
     return lines
+
+
+def _join(names: list[str]) -> str:
+    """``"a"``, ``"a and b"``, ``"a, b and c"``."""
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
 def _on_feature(w: dict[str, Any]) -> list[str]:
     place = w.get("on_feature")
     if not place:
         return []
-    where = f"at the tip of {place['feature']}" if place["at_tip"] else f"on {place['feature']}"
+    if place["at_tip"]:
+        where = f"at the tip of {place['feature']}"
+    else:
+        where = f"{'in' if place['kind'] == 'component' else 'on'} {place['feature']}"
     return [
         f"It lies {where}: {place['share'] * 100:.0f}% of its rows are in that feature of "
         "the shape (see the shape of the data).",

@@ -22,6 +22,7 @@ from typing import Any
 
 from topoaudit.audit.diff import bundle_diff
 from topoaudit.audit.result import build_date, canonical_json
+from topoaudit.progress import Progress
 from topoaudit.report.archive import (
     ArchiveError,
     check_name,
@@ -129,11 +130,13 @@ def build_site(
     *,
     site_name: str = "Model audits",
     row_ids: bool = False,
+    progress: Progress | None = None,
 ) -> Path:
     """Build the static site of ``archive`` into ``out`` (replaced only when complete).
 
     The site holds aggregates only. With ``row_ids`` (an explicit opt-in) each release page
     also links a CSV of the ids of the rows in its weak regions, under a caution.
+    ``progress`` is called with a message at each step (see :mod:`topoaudit.progress`).
     """
     archive, out = Path(archive), Path(out)
     if (
@@ -153,14 +156,22 @@ def build_site(
     work = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
     try:
         with locked(work / ".lock"):
-            _build_into(work, archive, out, template, site_name, row_ids)
+            _build_into(
+                work, archive, out, template, site_name, row_ids, progress or (lambda _m: None)
+            )
     finally:
         shutil.rmtree(work, ignore_errors=True)
     return out
 
 
 def _build_into(
-    work: Path, archive: Path, out: Path, template: Path, site_name: str, row_ids: bool
+    work: Path,
+    archive: Path,
+    out: Path,
+    template: Path,
+    site_name: str,
+    row_ids: bool,
+    say: Progress,
 ) -> None:
     """Write the mkdocs project into ``work``, build it, and swap it in as ``out``."""
     import vl_convert as vlc
@@ -170,7 +181,9 @@ def _build_into(
     docs = work / "docs"
     nav: list[Any] = [{"Home": "index.md"}]
     listing = []
-    for model in _models(archive):
+    models = _models(archive)
+    for k, model in enumerate(models, start=1):
+        say(f"step 1 of 3: pages of model {k} of {len(models)} ({model})")
         rels = list_releases(archive, model)
         for r in rels:
             refuse_changed(r["folder"])
@@ -221,12 +234,14 @@ def _build_into(
     yml += "nav:\n" + _nav_yaml(nav, 1)
     (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
     log.info("running mkdocs build")
+    say("step 2 of 3: running mkdocs build")
     try:
         build(load_config(str(work / "mkdocs.yml")))
     except Exception as exc:
         msg = f"mkdocs could not build the site from {archive}: {exc}"
         raise ArchiveError(msg) from exc
     built = work / "site"
+    say("step 3 of 3: writing the built site to disk and moving it into place")
     (built / SITE_MARKER).write_text(
         canonical_json({"built": build_date(), "by": "topoaudit site build"}), encoding="utf-8"
     )

@@ -39,6 +39,28 @@ def _largest_magnitude(values: pd.Series) -> float:
     return round(float(finite.max()), 3) if len(finite) and finite.max() > 0 else 1.0
 
 
+GRAPH_WIDTH, GRAPH_HEIGHT = 640, 440
+
+
+def equal_aspect_domains(
+    x: Sequence[float], y: Sequence[float], *, margin: float = 0.08
+) -> tuple[list[float], list[float]]:
+    """Axis domains around the points ``(x, y)`` in which one unit is as long on both
+    axes of the graph view, with a margin, so a ring looks round and a path keeps its
+    direction."""
+    if not len(x):
+        return [0.0, 1.0], [0.0, 1.0]
+    x0, x1, y0, y1 = min(x), max(x), min(y), max(y)
+    w, h = max(x1 - x0, 1e-9), max(y1 - y0, 1e-9)
+    per_px = max(w / GRAPH_WIDTH, h / GRAPH_HEIGHT) * (1 + 2 * margin)
+    cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
+    half_w, half_h = per_px * GRAPH_WIDTH / 2, per_px * GRAPH_HEIGHT / 2
+    return (
+        [round(cx - half_w, 4), round(cx + half_w, 4)],
+        [round(cy - half_h, 4), round(cy + half_h, 4)],
+    )
+
+
 def graph_view(
     nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str, notes: Sequence[str] = ()
 ) -> alt.LayerChart:
@@ -62,8 +84,9 @@ def graph_view(
         ),
     )
     axis = alt.Axis(title=None, labels=False, ticks=False, domain=False, grid=False)
-    base_x = alt.X("x:Q", axis=axis, scale=alt.Scale(zero=False, nice=False))
-    base_y = alt.Y("y:Q", axis=axis, scale=alt.Scale(zero=False, nice=False))
+    x_domain, y_domain = equal_aspect_domains(list(nodes["x"]), list(nodes["y"]))
+    base_x = alt.X("x:Q", axis=axis, scale=alt.Scale(zero=False, nice=False, domain=x_domain))
+    base_y = alt.Y("y:Q", axis=axis, scale=alt.Scale(zero=False, nice=False, domain=y_domain))
     links = (
         alt.Chart(edges)
         .mark_rule(color=COLOURS["edge"], strokeWidth=1, opacity=0.7)
@@ -127,8 +150,8 @@ def graph_view(
         )
     )
     return alt.layer(links, points, outline).properties(
-        width=640,
-        height=440,
+        width=GRAPH_WIDTH,
+        height=GRAPH_HEIGHT,
         title=alt.Title(title, subtitle=["dashed magenta rings: nodes in a weak region", *notes]),
     )
 
