@@ -18,11 +18,8 @@ from __future__ import annotations
 import argparse
 import hashlib
 import json
-import os
-import platform
 import resource
 import statistics
-import subprocess
 import sys
 import time
 from pathlib import Path
@@ -30,7 +27,13 @@ from typing import Any
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[2]
+from tests.benchmarks.measure import ROOT, spawn
+from tests.benchmarks.measure import current_rss_mb as _current_rss_mb
+from tests.benchmarks.measure import environment as _environment
+from tests.benchmarks.measure import fmt as _fmt
+from tests.benchmarks.measure import rss_mb as _rss_mb
+from tests.benchmarks.measure import wait_until_quiet as _wait_until_quiet
+
 DEFAULT_SIZES = (100_000, 300_000, 1_000_000)
 QUICK_SIZES = (20_000, 50_000)
 DBSCAN_ROWS = 100_000
@@ -94,21 +97,6 @@ def make_data(n_rows: int, n_features: int = N_FEATURES, seed: int = SEED) -> np
     return X
 
 
-def _rss_mb(usage: resource.struct_rusage) -> float:
-    """``ru_maxrss`` in MiB (Linux reports KiB, macOS bytes)."""
-    scale = 2**20 if sys.platform == "darwin" else 2**10
-    return usage.ru_maxrss / scale
-
-
-def _current_rss_mb() -> float | None:
-    """Resident memory of this process now, in MiB (Linux only, else None)."""
-    try:
-        pages = int(Path("/proc/self/statm").read_text().split()[1])
-    except (OSError, IndexError, ValueError):
-        return None
-    return pages * os.sysconf("SC_PAGE_SIZE") / 2**20
-
-
 def _fingerprint(graph: Any) -> str:
     """A digest of the nodes (members, element, filter mean) and edges of a graph."""
     h = hashlib.sha256()
@@ -167,58 +155,10 @@ def _run_child(config: dict[str, Any]) -> dict[str, Any]:
     }
 
 
-def _cpu_seconds() -> float | None:
-    """CPU seconds all processes of the machine have used (Linux ``/proc/stat``, else None)."""
-    try:
-        fields = [int(v) for v in Path("/proc/stat").read_text().split("\n")[0].split()[1:]]
-    except (OSError, ValueError, IndexError):
-        return None
-    busy = sum(fields[:8]) - fields[3] - fields[4]  # all but idle and iowait; no guest time
-    return busy / os.sysconf("SC_CLK_TCK")
-
-
-def _busy_cores(seconds: float = 0.5) -> float | None:
-    """Cores kept busy by all processes over the next ``seconds``."""
-    start = _cpu_seconds()
-    time.sleep(seconds)
-    stop = _cpu_seconds()
-    return None if start is None or stop is None else (stop - start) / seconds
-
-
-def _wait_until_quiet(max_wait: float, threshold: float = 0.25) -> float | None:
-    """Wait (at most ``max_wait`` s) until other processes keep under ``threshold`` cores
-    busy; return the last figure measured."""
-    deadline = time.monotonic() + max_wait
-    busy = _busy_cores()
-    while busy is not None and busy > threshold and time.monotonic() < deadline:
-        time.sleep(2.0)
-        busy = _busy_cores()
-    return busy
-
-
-def _children_cpu_seconds() -> float:
-    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return usage.ru_utime + usage.ru_stime
-
-
 def _spawn(config: dict[str, Any]) -> dict[str, Any]:
-    """Run one configuration in a fresh subprocess of this module.
-
-    Besides the subprocess's own figures, records how many cores other processes of the
-    machine kept busy meanwhile: machine CPU time less the subprocess's (and its reaped
-    workers'), over the wall time.
-    """
-    cmd = [sys.executable, "-m", "tests.benchmarks.run", "--child", json.dumps(config)]
-    cpu0, own0, t0 = _cpu_seconds(), _children_cpu_seconds(), time.perf_counter()
-    proc = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, check=False)
-    cpu1, own1, t1 = _cpu_seconds(), _children_cpu_seconds(), time.perf_counter()
-    others = None
-    if cpu0 is not None and cpu1 is not None:
-        others = max(0.0, ((cpu1 - cpu0) - (own1 - own0)) / max(t1 - t0, 1e-9))
-    lines = [line for line in proc.stdout.splitlines() if line.startswith("{")]
-    if proc.returncode != 0 or not lines:
-        return {**config, "error": (proc.stderr.strip().splitlines() or ["no output"])[-1]}
-    return {**json.loads(lines[-1]), "others_during": others}
+    """Run one configuration in a fresh subprocess of this module (with the machine's
+    other load meanwhile, as ``others_during``)."""
+    return spawn("tests.benchmarks.run", config)
 
 
 def _configs(sizes: list[int], dbscan_rows: int, repeats: int) -> list[dict[str, Any]]:
@@ -265,10 +205,6 @@ def _measure(
             break
     assert best is not None
     return {**best, "attempts": attempts}
-
-
-def _fmt(value: float | None, digits: int = 2) -> str:
-    return "n/a" if value is None else f"{value:.{digits}f}"
 
 
 def _derive(results: list[dict[str, Any]]) -> None:
@@ -408,21 +344,6 @@ def _targets(results: list[dict[str, Any]]) -> list[str]:
     else:
         lines.append(f"- Memory and build time at {TARGET_ROWS:,} rows: not measured.")
     return lines
-
-
-def _environment() -> str:
-    import scipy
-    import sklearn
-
-    try:
-        cores = len(os.sched_getaffinity(0))
-    except AttributeError:
-        cores = os.cpu_count()
-    return (
-        f"{platform.platform()}, {platform.processor() or platform.machine()}, {cores} cores "
-        f"usable; Python {platform.python_version()}, numpy {np.__version__}, "
-        f"scipy {scipy.__version__}, scikit-learn {sklearn.__version__}"
-    )
 
 
 def _report(results: list[dict[str, Any]], elapsed: float, quick: bool) -> str:
