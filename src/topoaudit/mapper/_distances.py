@@ -23,7 +23,14 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["BLOCK_BYTES", "MAX_BYTES", "iter_sq_distances", "kth_distance", "nearest_index"]
+__all__ = [
+    "BLOCK_BYTES",
+    "MAX_BYTES",
+    "iter_sq_distances",
+    "kth_distance",
+    "nearest_index",
+    "one_blas_thread",
+]
 
 MAX_BYTES = 64 * 2**20
 BLOCK_BYTES = 2**20
@@ -33,7 +40,7 @@ _MIN_BLOCK_ROWS = 8
 _controller: Any = None
 
 
-def _one_blas_thread() -> contextlib.AbstractContextManager[Any]:
+def one_blas_thread() -> contextlib.AbstractContextManager[Any]:
     """A context in which numpy's BLAS uses one thread (a no-op without threadpoolctl)."""
     global _controller
     if _controller is None:
@@ -130,7 +137,7 @@ def nearest_index(A: np.ndarray, B: np.ndarray, *, max_bytes: int = MAX_BYTES) -
     [0, 1, 2]
     """
     out = np.empty(A.shape[0], dtype=np.intp)
-    with _one_blas_thread():
+    with one_blas_thread():
         for start, stop, _, v in _iter_shifted(A, B, max_bytes):
             np.argmin(v, axis=1, out=out[start:stop])
     return out
@@ -170,7 +177,7 @@ def kth_distance(
     kk = k + 1 if self_included else k
     kk = min(kk, B.shape[0])
     out = np.empty(A.shape[0], dtype=np.float64)
-    with _one_blas_thread():
+    with one_blas_thread():
         for start, stop, a, v in _iter_shifted(A, B, max_bytes):
             v.partition(kk - 1, axis=1)
             part = v[:, kk - 1] + np.einsum("ij,ij->i", a, a)

@@ -47,7 +47,7 @@ from typing import Any
 import numpy as np
 
 from topoaudit._validation import random_generator
-from topoaudit.mapper._distances import iter_sq_distances, kth_distance
+from topoaudit.mapper._distances import iter_sq_distances, kth_distance, one_blas_thread
 
 __all__ = [
     "DEFAULT_GAIN",
@@ -172,11 +172,12 @@ def filter_spread(X: np.ndarray, values: np.ndarray, scale: float) -> np.ndarray
     if X.shape[0] < 2 or scale <= 0:
         return best
     limit = scale * scale * (1 + 1e-12)
-    for start, stop, d2 in iter_sq_distances(X, X, max_bytes=16 * 2**20):
-        near = d2 <= limit
-        for j in range(values.shape[1]):
-            diff = np.abs(values[start:stop, j, None] - values[None, :, j])
-            best[j] = max(best[j], float(np.max(diff, where=near, initial=0.0)))
+    with one_blas_thread():  # thin products: more threads only wait for each other
+        for start, stop, d2 in iter_sq_distances(X, X, max_bytes=16 * 2**20):
+            near = d2 <= limit
+            for j in range(values.shape[1]):
+                diff = np.abs(values[start:stop, j, None] - values[None, :, j])
+                best[j] = max(best[j], float(np.max(diff, where=near, initial=0.0)))
     return best
 
 
