@@ -10,6 +10,8 @@ from topoaudit.report.text import escape
 
 NUMBER = re.compile(r"(?<![\w.])[-+]?\d[\d,]*(?:\.\d+)?(?:e[-+]?\d+)?(?![\w])")
 DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+#: the year of a cited publication, "Oudot (2018)" or "Oudot, 2018)": not a result
+CITED_YEAR = re.compile(r"(?<=[a-z] )\((?:19|20)\d{2}\)|(?<=[a-z], )(?:19|20)\d{2}(?=\))")
 
 
 def _leaves(value, numbers, strings):
@@ -44,6 +46,7 @@ def _page_numbers(markdown: str, strings: list[str]) -> list[str]:
         if len(s) >= 2:
             text = text.replace(escape(s), " ").replace(s, " ")
     text = DATE.sub(" ", text)
+    text = CITED_YEAR.sub(" ", text)
     text = re.sub(r"\bW\d+\b", " ", text)  # weak-region ids are strings in the analysis
     return [n.rstrip(",") for n in NUMBER.findall(text)]
 
@@ -90,3 +93,13 @@ def test_each_chart_is_embedded_as_svg_and_as_an_inline_spec(fixture_archive):
         assert (bundle / "charts" / f"{name}.svg").read_text().startswith("<svg")
         spec = json.loads((bundle / "charts" / f"{name}.vl.json").read_text())
         assert spec["$schema"].startswith("https://vega.github.io/schema/vega-lite/")
+
+
+def test_the_shape_section_names_each_feature_in_words(fixture_archive):
+    _, bundles, _ = fixture_archive
+    page = (bundles["2026.2"] / "page.md").read_text()
+    section = page.split("### Features of the shape")[1].split("## Regions")[0]
+    for name in ("the main component", "separate group 1", "loop 1", "flare 1", "flare 2"):
+        assert f"| {name} |" in section
+    assert "chosen from the data" in section
+    assert "(s)" not in page.split("## The shape of the data")[1].split("## Regions")[0]
