@@ -40,6 +40,7 @@ CASE = ReferenceCase(
         "filter_params": {"columns": 1},
         "n_intervals": 4,
         "overlap": 0.3,
+        "clusterer": "single_linkage",
     },
     neighbourhood={"n_intervals": [3, 4, 5, 6], "overlap": [0.2, 0.3, 0.4]},
     check=check,

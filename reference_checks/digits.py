@@ -29,7 +29,7 @@ CASE = ReferenceCase(
     source="Alpaydin and Kaynak (1998); UCI Machine Learning Repository, optdigits",
     expected="1,797 rows in 10 classes; mean node purity >= 0.55 (base rate 0.10)",
     make_data=make_data,
-    params={"filter": "pca", "n_intervals": 10, "overlap": 0.3},
+    params={"filter": "pca", "n_intervals": 10, "overlap": 0.3, "clusterer": "single_linkage"},
     neighbourhood={"n_intervals": [8, 9, 10, 11, 12], "overlap": [0.2, 0.3, 0.4]},
     check=purity_case_check(183 / 1797),
     data_checks=lambda d: counts_check(d.labels, PER_DIGIT),

@@ -34,7 +34,12 @@ CASE = ReferenceCase(
     source="common practice, no source",
     expected="a tree (1 component, cycle rank 0) with 3 leaves",
     make_data=make_data,
-    params={"filter": "eccentricity", "n_intervals": 6, "overlap": 0.3},
+    params={
+        "filter": "eccentricity",
+        "n_intervals": 6,
+        "overlap": 0.3,
+        "clusterer": "single_linkage",
+    },
     neighbourhood={"n_intervals": [4, 5, 6, 7, 8], "overlap": [0.2, 0.3, 0.4]},
     check=check,
 )

@@ -35,7 +35,7 @@ CASE = ReferenceCase(
     source="common practice, no source (two circles: 2 components, Betti-1 number 2)",
     expected="2 components, cycle rank 2, each circle in its own component",
     make_data=make_data,
-    params={**_HEIGHT, "n_intervals": 6, "overlap": 0.3},
+    params={**_HEIGHT, "n_intervals": 6, "overlap": 0.3, "clusterer": "single_linkage"},
     neighbourhood={"n_intervals": [4, 5, 6, 7, 8], "overlap": [0.2, 0.3, 0.4]},
     check=check,
 )

@@ -39,7 +39,12 @@ CASE = ReferenceCase(
     source="Lang and Witbrock (1988), the two-spirals benchmark",
     expected="every node pure in one spiral; the spirals in different components",
     make_data=make_data,
-    params={"filter": "eccentricity", "n_intervals": 10, "overlap": 0.3},
+    params={
+        "filter": "eccentricity",
+        "n_intervals": 10,
+        "overlap": 0.3,
+        "clusterer": "single_linkage",
+    },
     neighbourhood={"n_intervals": [8, 9, 10, 11, 12], "overlap": [0.2, 0.3, 0.4]},
     check=check,
 )

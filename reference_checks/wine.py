@@ -25,7 +25,7 @@ CASE = ReferenceCase(
     source="UCI Machine Learning Repository, Wine (Forina et al., 1988)",
     expected="178 rows (59/71/48); mean node purity >= 0.70 (base rate 0.40)",
     make_data=make_data,
-    params={"filter": "pca", "n_intervals": 10, "overlap": 0.3},
+    params={"filter": "pca", "n_intervals": 10, "overlap": 0.3, "clusterer": "single_linkage"},
     neighbourhood={"n_intervals": [8, 9, 10, 11, 12], "overlap": [0.2, 0.3, 0.4]},
     check=purity_case_check(71 / 178),
     data_checks=lambda d: counts_check(d.labels, {0: 59, 1: 71, 2: 48}),
