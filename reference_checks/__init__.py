@@ -1,7 +1,9 @@
 """Reference checks: the graph builder against data sets whose shape is known.
 
 Each module holds one case: its data, its stated settings and the neighbourhood of
-settings around them, the invariants expected and where that expectation comes from. The
+settings around them, the invariants expected and where that expectation comes from.
+Every case is also run at the settings chosen from the data (its filter kept, the rest
+``"auto"``). The
 runner (:mod:`reference_checks.runner`) is used by the test suite and by
 ``topoaudit check``.
 """
@@ -14,11 +16,16 @@ from reference_checks import (
     concentric_circles,
     digits,
     four_gaussians,
+    gaussian_blob,
     iris,
+    iris_setosa,
+    sphere,
     three_armed_star,
+    torus,
     two_circles,
     two_spirals,
     wine,
+    y_flares,
 )
 from reference_checks._case import CaseResult, ReferenceCase, run_case
 
@@ -35,4 +42,9 @@ CASES: tuple[ReferenceCase, ...] = (
     wine.CASE,
     breast_cancer.CASE,
     digits.CASE,
+    torus.CASE,
+    sphere.CASE,
+    y_flares.CASE,
+    iris_setosa.CASE,
+    gaussian_blob.CASE,
 )

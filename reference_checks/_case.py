@@ -1,4 +1,12 @@
-"""What a reference case is, and how one is run over its stated settings and neighbourhood."""
+"""What a reference case is, and how one is run over its stated settings, their
+neighbourhood, and the settings chosen from the data.
+
+The run at settings chosen from the data (``"auto"``) keeps the case's filter and its
+parameters and leaves everything else to the builder's defaults: ``n_intervals``,
+``overlap`` and ``clusterer`` are ``"auto"`` (:mod:`topoaudit.mapper.auto`) and the cover
+is uniform, the cover the rule is stated for. It is what a user gets by naming the
+filter and nothing else.
+"""
 
 from __future__ import annotations
 
@@ -10,16 +18,23 @@ from typing import Any
 import networkx as nx
 import numpy as np
 
-from topoaudit.mapper.graph import MapperBuilder, MapperGraph
+from topoaudit.mapper.auto import AutoChoice
+from topoaudit.mapper.graph import AUTO, MapperBuilder, MapperGraph
 from topoaudit.mapper.topology import Invariants, invariants, row_components
 
 __all__ = [
+    "AUTO_KEPT",
     "CaseResult",
     "ReferenceCase",
     "SettingResult",
+    "chosen_intervals",
     "networkx_disagreements",
+    "run_auto",
     "run_case",
 ]
+
+AUTO_KEPT = ("filter", "filter_params")
+"""The stated parameters the run at settings chosen from the data keeps."""
 
 Check = Callable[[MapperGraph, "Data", Mapping[str, Any]], tuple[bool, str]]
 
@@ -52,6 +67,12 @@ class ReferenceCase:
     neighbourhood: Mapping[str, Sequence[Any]] = field(default_factory=dict)
     data_checks: Callable[[Data], list[tuple[str, bool]]] | None = None
 
+    def auto_settings(self) -> dict[str, Any]:
+        """The case's filter with the interval count, overlap and clusterer left to
+        ``"auto"`` (every other parameter at the builder's default)."""
+        kept = {k: v for k, v in self.params.items() if k in AUTO_KEPT}
+        return {**kept, "n_intervals": AUTO, "overlap": AUTO, "clusterer": AUTO}
+
     def settings(self) -> list[dict[str, Any]]:
         """The stated settings first, then every other combination of the neighbourhood."""
         stated = dict(self.params)
@@ -71,6 +92,7 @@ class SettingResult:
     got: str
     invariants: Invariants
     networkx_agrees: bool
+    auto: AutoChoice | None = None
 
 
 @dataclass(frozen=True)
@@ -79,15 +101,31 @@ class CaseResult:
     stated: SettingResult
     neighbours: list[SettingResult]
     data_checks: list[tuple[str, bool]]
+    auto: SettingResult | None = None
 
     @property
     def passed(self) -> bool:
+        """The stated settings, every neighbour, the data checks and (when run) the
+        settings chosen from the data all pass, with networkx agreeing on every graph."""
+        return self.settings_passed and self.auto_passed is not False
+
+    @property
+    def settings_passed(self) -> bool:
+        """The stated settings, every neighbour and the data checks pass (networkx
+        agreeing), whatever the settings chosen from the data gave."""
         return (
             self.stated.passed
             and self.stated.networkx_agrees
             and all(r.passed and r.networkx_agrees for r in self.neighbours)
             and all(ok for _, ok in self.data_checks)
         )
+
+    @property
+    def auto_passed(self) -> bool | None:
+        """Whether the case passes at the settings chosen from the data (None: not run)."""
+        if self.auto is None:
+            return None
+        return self.auto.passed and self.auto.networkx_agrees
 
     @property
     def neighbours_passed(self) -> int:
@@ -111,7 +149,8 @@ def networkx_disagreements(graph: MapperGraph, inv: Invariants) -> list[str]:
 
 
 def _run_setting(case: ReferenceCase, data: Data, setting: dict[str, Any]) -> SettingResult:
-    graph = MapperBuilder(**setting).fit(data.X).graph_
+    builder = MapperBuilder(**setting).fit(data.X)
+    graph = builder.graph_
     inv = invariants(graph)
     passed, got = case.check(graph, data, setting)
     return SettingResult(
@@ -120,20 +159,39 @@ def _run_setting(case: ReferenceCase, data: Data, setting: dict[str, Any]) -> Se
         got=got,
         invariants=inv,
         networkx_agrees=not networkx_disagreements(graph, inv),
+        auto=builder.auto_,
     )
 
 
-def run_case(case: ReferenceCase, *, neighbourhood: bool = True) -> CaseResult:
-    """Build the case's graph at its stated settings (and its neighbourhood) and check it."""
+def run_auto(case: ReferenceCase, data: Data | None = None) -> SettingResult:
+    """Build and check the case's graph at :meth:`ReferenceCase.auto_settings` only."""
+    return _run_setting(case, case.make_data() if data is None else data, case.auto_settings())
+
+
+def run_case(case: ReferenceCase, *, neighbourhood: bool = True, auto: bool = True) -> CaseResult:
+    """Build the case's graph at its stated settings, over their neighbourhood and at the
+    settings chosen from the data (:meth:`ReferenceCase.auto_settings`), and check each."""
     data = case.make_data()
     settings = case.settings()
     stated = _run_setting(case, data, settings[0])
     neighbours = [_run_setting(case, data, s) for s in settings[1:]] if neighbourhood else []
+    at_auto = run_auto(case, data) if auto else None
     checks = case.data_checks(data) if case.data_checks else []
-    return CaseResult(case=case, stated=stated, neighbours=neighbours, data_checks=checks)
+    return CaseResult(
+        case=case, stated=stated, neighbours=neighbours, data_checks=checks, auto=at_auto
+    )
 
 
 # Shared checks used by several cases -------------------------------------------------
+
+
+def chosen_intervals(graph: MapperGraph, setting: Mapping[str, Any]) -> int:
+    """The interval count the graph was built with: the stated one, or the one chosen from
+    the data when the setting says ``"auto"`` (one filter dimension)."""
+    k = setting.get("n_intervals", AUTO)
+    if k == AUTO:
+        return int(graph.settings["auto"]["n_intervals"][0])
+    return int(k)
 
 
 def describe(inv: Invariants) -> str:

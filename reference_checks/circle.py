@@ -3,14 +3,15 @@
 With the height as filter and ``k`` intervals, the top and bottom intervals each meet the
 circle in one arc and the ``k - 2`` middle ones in two arcs, so the graph is a cycle of
 ``2k - 2`` nodes: a hexagon (6 nodes, 6 edges) at ``k = 4``. Its cycle rank is 1, the first
-Betti number of the circle. Source: common practice, no source.
+Betti number of the circle. At the settings chosen from the data, ``k`` is the interval
+count the rule chose. Source: common practice, no source.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from reference_checks._case import Data, ReferenceCase, describe
+from reference_checks._case import Data, ReferenceCase, chosen_intervals, describe
 from topoaudit.mapper.topology import degrees, invariants
 
 
@@ -23,7 +24,7 @@ def make_data(n: int = 1000, noise: float = 0.03, seed: int = 0) -> Data:
 
 def check(graph, data, setting):
     inv = invariants(graph)
-    k = setting["n_intervals"]
+    k = chosen_intervals(graph, setting)
     cycle = inv.n_components == 1 and bool(np.all(degrees(graph) == 2))
     ok = cycle and inv.n_nodes == 2 * k - 2 and inv.n_edges == 2 * k - 2 and inv.cycle_rank == 1
     return ok, describe(inv) + ("; a cycle" if cycle else "; not a cycle")
