@@ -337,7 +337,15 @@ def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int)
     parts.append(f"which gives {cover}")
     if given["clusterer"] == "auto":
         parts.append("each interval's rows are clustered by single linkage cut at the scale")
-    return "; ".join(parts) + "."
+    text = "; ".join(parts) + "."
+    if given["n_intervals"] == "auto" and k == 1:
+        text += (
+            " With one interval the rule finds no shape it can resolve in these rows: the "
+            "farthest rows lie about as far from the others as the data is wide. Explicit "
+            "settings (n_intervals, overlap) draw a finer graph, whose features then need "
+            "their confidence to be read."
+        )
+    return text
 
 
 def _feature_where(f: dict[str, Any]) -> str:
