@@ -23,6 +23,7 @@ import networkx as nx
 import numpy as np
 import pytest
 
+from topoaudit.errors import ParameterError
 from topoaudit.mapper.executor import ProcessExecutor
 from topoaudit.mapper.features import (
     bottleneck_distance,
@@ -326,3 +327,14 @@ def test_noisy_circle_shows_its_loop_with_confidence_at_least_095():
     sure = sum(c >= SURE for c in found)
     print(f"circle: {sure} of {N_SEEDS} seeds, {time.perf_counter() - start:.0f} s")
     assert sure >= 19, found
+
+
+def test_confidence_refuses_a_two_dimensional_filter_whose_grid_draws_loops():
+    # a 2-D product cover has loops of its own grid (common practice, no source)
+    X = np.random.default_rng(0).normal(size=(300, 4))
+    builder = MapperBuilder("pca", filter_params={"n_components": 2}, n_intervals=4).fit(X)
+    with pytest.raises(
+        ParameterError,
+        match=r"^feature_confidence needs a graph of a one-dimensional filter; this one has 2 ",
+    ):
+        feature_confidence(builder, X, n_resamples=2)

@@ -126,15 +126,21 @@ def _settings_grid(
 def _shape(
     config: Config, ds: Dataset, X: np.ndarray, builder: MapperBuilder
 ) -> tuple[list[ShapeFeatureView], dict[str, Any]]:
-    """The features of the shown graph, described, and the record of how sure they are."""
+    """The features of the shown graph, described, and the record of how sure they are.
+    Only a graph of a one-dimensional filter has them (a product cover draws loops of its
+    own grid)."""
+    record: dict[str, Any] = {
+        "chosen": builder.auto_.as_dict() if builder.auto_ is not None else None,
+        "n_intervals": list(builder.n_intervals_),
+        "overlap": list(builder.overlap_),
+    }
+    if builder.filter_values_.shape[1] != 1:
+        return [], {**record, "resamples": 0, "resample_rows": 0, "features": [], "two_d": True}
     n = config.graph.resamples
     jobs = 2 if n >= 10 and ds.n_rows >= 2000 and (os.cpu_count() or 1) >= 2 else None
     summary = feature_confidence(builder, X, n_resamples=n, executor=jobs, random_state=config.seed)
     views = describe_shape(summary, builder.graph_.members, ds.X, list(ds.feature_names))
-    record = {
-        "chosen": builder.auto_.as_dict() if builder.auto_ is not None else None,
-        "n_intervals": list(builder.n_intervals_),
-        "overlap": list(builder.overlap_),
+    record |= {
         "resamples": summary.n_resamples,
         "resample_rows": summary.resample_rows,
         "features": [v.as_dict() for v in views],

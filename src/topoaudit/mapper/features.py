@@ -523,10 +523,18 @@ def feature_confidence(
     """
     import time
 
+    from topoaudit.errors import ParameterError
     from topoaudit.mapper._input import as_matrix
     from topoaudit.mapper.executor import make_executor
 
     X = as_matrix(X, min_rows=1)
+    if builder.filter_values_.shape[1] != 1:
+        msg = (
+            "feature_confidence needs a graph of a one-dimensional filter; this one has "
+            f"{builder.filter_values_.shape[1]} filter dimensions, whose product cover draws "
+            "loops of its own grid."
+        )
+        raise ParameterError(msg)
     graph = builder.graph_
     features = shape_features(graph)
     if n_resamples <= 0:

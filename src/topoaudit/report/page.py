@@ -364,6 +364,14 @@ def _shape_section(a: dict[str, Any]) -> list[str]:
         return []
     rows = a["provenance"]["rows"]
     lines = ["### Features of the shape", "", _settings_sentence(shape, a["config"], rows), ""]
+    if shape.get("two_d"):
+        return [
+            *lines,
+            "The filter has two dimensions: the cover's grid of intervals draws loops of its "
+            "own, so the graph's components, loops and flares are not listed or scored. Use "
+            "a one-dimensional filter to have them.",
+            "",
+        ]
     n = shape["resamples"]
     if n:
         lines += [
