@@ -21,9 +21,12 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -c "from sklearn_extra.cluster import KMedoids; import topoaudit"
 	touch $(STAMP)
 
+# The browser tests drive Chromium: .ci/browser.py finds one or installs it (apt as root,
+# else Playwright's download), or says in one line what to run and stops before any test.
 test: $(STAMP)
-	$(BIN)/ruff check src tests reference_checks
-	$(BIN)/python -m pytest src tests reference_checks
+	browser="$$($(BIN)/python .ci/browser.py)" && \
+	  $(BIN)/ruff check src tests reference_checks && \
+	  TOPOAUDIT_CHROMIUM="$$browser" $(BIN)/python -m pytest src tests reference_checks
 
 demo: $(STAMP)
 	$(BIN)/topoaudit demo --out build/demo

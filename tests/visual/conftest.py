@@ -5,6 +5,7 @@ from __future__ import annotations
 import functools
 import http.server
 import json
+import os
 import threading
 from pathlib import Path
 
@@ -14,7 +15,8 @@ from topoaudit.report.page import build_page
 
 FIXTURE = Path(__file__).parent / "fixture"
 RELEASES = ("2026.1", "2026.2")
-CHROMIUM = "/usr/bin/chromium"
+#: the browser ``make test`` found or installed (.ci/browser.py); Debian's by default
+CHROMIUM = os.environ.get("TOPOAUDIT_CHROMIUM", "/usr/bin/chromium")
 #: without the background-networking flags Chromium keeps trying hosts this network
 #: refuses; the font and colour flags keep screenshots the same from run to run
 CHROMIUM_ARGS = [
@@ -49,9 +51,12 @@ def serve(root: Path) -> http.server.ThreadingHTTPServer:
 
 @pytest.fixture(scope="module")
 def browser():
-    """Debian's Chromium through Playwright (never a downloaded browser)."""
+    """Chromium through Playwright: the one ``make test`` found or installed."""
     if not Path(CHROMIUM).exists():
-        pytest.fail(f"{CHROMIUM} is missing: install Debian's chromium (.ci/run does)")
+        pytest.fail(
+            f"{CHROMIUM} is missing: run make test, which finds or installs Chromium, or set "
+            "TOPOAUDIT_CHROMIUM to a Chromium binary"
+        )
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as p:
