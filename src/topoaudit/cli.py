@@ -91,6 +91,19 @@ def _audit(args: argparse.Namespace) -> int:
     return 0
 
 
+def _init(args: argparse.Namespace) -> int:
+    from topoaudit.starter import write_starter
+
+    starter, _config = write_starter(args.data, args.out, id=args.id, target=args.target)
+    print(f"guessed from {args.data} ({starter.rows:,} rows), task {starter.task}:")
+    width = max(len(g.role) for g in starter.guesses)
+    for g in starter.guesses:
+        column = g.column if g.role in ("features", "on_missing") else repr(g.column)
+        print(f"  {g.role:<{width}}  {column}: {g.why}")
+    print(f"wrote {args.out}; audit it with: topoaudit audit {args.out} --out audit-bundle")
+    return 0
+
+
 def _publish(args: argparse.Namespace) -> int:
     from topoaudit.report.site import publish
 
@@ -180,6 +193,18 @@ def _parser() -> argparse.ArgumentParser:
         help="check the stated settings only, not their neighbourhood",
     )
     p.set_defaults(run=_check)
+
+    p = sub.add_parser(
+        "init",
+        help="write a starter audit config guessed from a CSV or Parquet file, with reasons",
+    )
+    p.add_argument("data", help="the validation rows: a .csv or .parquet file")
+    p.add_argument(
+        "--out", default="audit.toml", help="the config to write; never overwritten (%(default)s)"
+    )
+    p.add_argument("--id", help="the id column, when more than one could be")
+    p.add_argument("--target", help="the target column, when the guess is not the one")
+    p.set_defaults(run=_init)
 
     p = sub.add_parser("audit", help="audit one release and write its bundle")
     p.add_argument("config", help="the audit's TOML config file")
