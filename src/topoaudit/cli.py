@@ -6,11 +6,11 @@ import argparse
 import shutil
 import sys
 import tempfile
-import time
 from collections.abc import Sequence
 from pathlib import Path
 
 from topoaudit.errors import TopoauditError
+from topoaudit.progress import PROGRESS_MODES, ProgressLine
 
 __all__ = ["main"]
 
@@ -21,14 +21,18 @@ def _check(args: argparse.Namespace) -> int:
     return print_report(run_cases(args.cases, neighbourhood=not args.stated_only))
 
 
-def _progress(quiet: bool):
-    start = time.perf_counter()
+def _progress(args: argparse.Namespace) -> ProgressLine:
+    """The progress line asked for: ``--quiet`` is ``--progress quiet``."""
+    return ProgressLine("quiet" if args.quiet else args.progress)
 
-    def say(message: str) -> None:
-        if not quiet:
-            print(f"[{time.perf_counter() - start:6.1f} s] {message}", file=sys.stderr, flush=True)
 
-    return say
+def _prefixed(say: ProgressLine, prefix: str):
+    """A progress hook that puts ``prefix: `` before each message."""
+
+    def prefixed(message: str) -> None:
+        say(f"{prefix}: {message}")
+
+    return prefixed
 
 
 def _write_bundle(audit, out: Path) -> None:
@@ -85,8 +89,10 @@ def _audit(args: argparse.Namespace) -> int:
         ["topoaudit", "audit", str(args.config), "--out", str(args.out)]
         + (["--release", args.release] if args.release else [])
     )
-    audit = run_audit(config, release=args.release, progress=_progress(args.quiet), command=command)
-    _write_bundle(audit, out)
+    with _progress(args) as say:
+        audit = run_audit(config, release=args.release, progress=say, command=command)
+        say("writing the bundle, its page and its charts")
+        _write_bundle(audit, out)
     print(f"{_summary(audit.result)}; bundle written to {out}")
     return 0
 
@@ -115,7 +121,14 @@ def _publish(args: argparse.Namespace) -> int:
 def _site_build(args: argparse.Namespace) -> int:
     from topoaudit.report.site import build_site
 
-    out = build_site(args.archive, args.out, site_name=args.name, row_ids=args.include_row_ids)
+    with _progress(args) as say:
+        out = build_site(
+            args.archive,
+            args.out,
+            site_name=args.name,
+            row_ids=args.include_row_ids,
+            progress=say,
+        )
     print(f"site built: {out / 'index.html'}")
     return 0
 
@@ -143,38 +156,56 @@ def _demo(args: argparse.Namespace) -> int:
     from topoaudit.report.site import build_site, publish
 
     out = Path(args.out)
-    say = _progress(args.quiet)
-    say(f"writing {args.rows:,} invented water-meter rows and the audit config")
-    config_path = write_demo_project(out / "project", args.rows, seed=args.seed)
-    config = load_config(config_path)
-    archive = out / "archive"
-    summaries = []
-    for release in config.releases:
-        say(f"auditing release {release.name}")
-        audit = run_audit(
-            config,
-            release=release.name,
-            progress=say,
-            command=f"topoaudit audit {config_path} --release {release.name}",
+    with _progress(args) as say:
+        say(f"writing {args.rows:,} invented water-meter rows and the audit config")
+        config_path = write_demo_project(out / "project", args.rows, seed=args.seed)
+        config = load_config(config_path)
+        archive = out / "archive"
+        summaries = []
+        n = len(config.releases)
+        for k, release in enumerate(config.releases, start=1):
+            say_release = _prefixed(say, f"release {k} of {n} ({release.name})")
+            audit = run_audit(
+                config,
+                release=release.name,
+                progress=say_release,
+                command=f"topoaudit audit {config_path} --release {release.name}",
+            )
+            say_release("writing the bundle and publishing it")
+            bundle = out / "bundles" / release.name
+            if bundle.exists():
+                shutil.rmtree(bundle)
+            _write_bundle(audit, bundle)
+            publish(bundle, archive, replace=True)
+            inv = audit.result.graph["invariants"]
+            summaries.append(
+                f"{_summary(audit.result)}; graph of {inv['n_nodes']} nodes, "
+                f"{inv['n_edges']} edges, {inv['n_components']} components, cycle rank "
+                f"{inv['cycle_rank']}, {inv['n_leaves']} leaves, "
+                f"{inv['n_branch_points']} branch points"
+            )
+        site = build_site(
+            archive,
+            out / "site",
+            site_name="Water meter failure model audits",
+            progress=_prefixed(say, "site"),
         )
-        bundle = out / "bundles" / release.name
-        if bundle.exists():
-            shutil.rmtree(bundle)
-        _write_bundle(audit, bundle)
-        publish(bundle, archive, replace=True)
-        inv = audit.result.graph["invariants"]
-        summaries.append(
-            f"{_summary(audit.result)}; graph of {inv['n_nodes']} nodes, {inv['n_edges']} edges, "
-            f"{inv['n_components']} components, cycle rank {inv['cycle_rank']}, "
-            f"{inv['n_leaves']} leaves, {inv['n_branch_points']} branch points"
-        )
-    say("building the site")
-    site = build_site(archive, out / "site", site_name="Water meter failure model audits")
     print()
     for line in summaries:
         print(line)
     print(f"home page: {(site / 'index.html').resolve()}")
     return 0
+
+
+def _progress_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--progress",
+        choices=PROGRESS_MODES,
+        default="auto",
+        help="how progress is shown on stderr: 'line' redrawn in place, 'plain' lines, "
+        "'quiet' nothing; 'auto' is 'line' on a terminal, else 'plain' (%(default)s)",
+    )
+    p.add_argument("--quiet", action="store_true", help="no progress messages (--progress quiet)")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -210,7 +241,7 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("config", help="the audit's TOML config file")
     p.add_argument("--out", required=True, help="folder for the bundle (must be new or empty)")
     p.add_argument("--release", help="release to audit (default: the last in the config)")
-    p.add_argument("--quiet", action="store_true", help="no progress messages")
+    _progress_options(p)
     p.set_defaults(run=_audit)
 
     p = sub.add_parser("publish", help="add a bundle to the archive as <model>/<release>")
@@ -235,6 +266,7 @@ def _parser() -> argparse.ArgumentParser:
         help="also list the ids of the rows in each weak region (row-level data; off by "
         "default, when the site holds aggregates only)",
     )
+    _progress_options(q)
     q.set_defaults(run=_site_build)
 
     p = sub.add_parser("archive", help="check the archive of published bundles")
@@ -256,7 +288,7 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="build/demo", help="folder for everything (%(default)s)")
     p.add_argument("--rows", type=int, default=8000, help="rows to generate (%(default)s)")
     p.add_argument("--seed", type=int, default=7, help="random seed (%(default)s)")
-    p.add_argument("--quiet", action="store_true", help="no progress messages")
+    _progress_options(p)
     p.set_defaults(run=_demo)
     return parser
 
