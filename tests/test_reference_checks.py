@@ -29,16 +29,13 @@ from topoaudit.errors import UnknownNameError
 from topoaudit.mapper.graph import MapperBuilder
 from topoaudit.mapper.topology import invariants
 
-# At the settings chosen from the data these standardised UCI tables give a graph of one
-# node: their neighbourhood scale (the Hausdorff distance to subsamples of n / ln n rows,
-# a largest distance, set by the most isolated row) is about the median distance between
-# two rows or more (wine 4.9 against 5.0, breast cancer 13.4 against 6.4, digits 46.2
-# against 9.8; measured), so the filter's spread over that scale is its whole range and
-# the rule chooses one interval. The purity checks are right to fail on one node.
+# At the settings chosen from the data the standardised UCI Wine table (178 rows, 13
+# columns) gives a graph of one node: its neighbourhood scale (the 99th percentile of
+# the distances to subsamples of n / ln n rows) is 4.29, about the median distance
+# between two rows (5.0; measured), so the filter's spread over that scale is its whole
+# range and the rule chooses one interval. The purity check is right to fail on one node.
 _ONE_NODE_AT_AUTO = {
-    "uci_wine": "the auto rule's scale exceeds the median row distance: one interval, one node",
-    "uci_breast_cancer": "the auto rule's scale is twice the median row distance: one node",
-    "uci_digits": "the auto rule's scale is near the diameter of the data: one node",
+    "uci_wine": "the auto rule's scale is about the median row distance: one interval, one node",
 }
 
 
@@ -155,7 +152,7 @@ def test_table_lists_each_case_with_its_verdict():
         "| case | expected | got (stated settings) | neighbourhood | auto settings | pass |"
     )
     assert "| circle | a cycle of 2k-2 nodes" in table
-    assert "| not run | pass (9 intervals, scale 0.141) | pass |" in table.splitlines()[2]
+    assert "| not run | pass (12 intervals, scale 0.114) | pass |" in table.splitlines()[2]
     assert table.count(" | pass |") == 3  # the header and two passing rows
     assert table.endswith("2 of 2 reference cases pass.")
 
@@ -164,10 +161,10 @@ def test_table_says_when_a_case_fails_at_auto_and_what_the_graph_showed():
     results = run_cases(["uci_wine"], neighbourhood=False)
     row = format_table(results).splitlines()[2]
     assert row.endswith(
-        "| FAIL (1 interval, scale 4.89): mean node purity 0.399 (bound 0.699), 1 nodes | FAIL |"
+        "| FAIL (1 interval, scale 4.29): mean node purity 0.399 (bound 0.699), 1 nodes | FAIL |"
     )
     assert failures(results) == [
-        "uci_wine auto: FAIL (1 interval, scale 4.89): mean node purity 0.399 (bound 0.699), "
+        "uci_wine auto: FAIL (1 interval, scale 4.29): mean node purity 0.399 (bound 0.699), "
         "1 nodes"
     ]
 

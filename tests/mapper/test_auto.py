@@ -136,9 +136,10 @@ def test_choose_settings_puts_the_pieces_together_and_caps_the_count():
     X = _circle(400, seed=3)
     values = X[:, 1]
     choice = choose_settings(X, values, random_state=11)
-    scale, m = neighbourhood_scale(X, random_state=np.random.default_rng(11))
+    scale, m = neighbourhood_scale(X, quantile=0.99, random_state=np.random.default_rng(11))
     assert (choice.scale, choice.subsample_rows) == (pytest.approx(scale), m)
-    (spread,) = filter_spread(X, values, choice.scale)
+    assert choice.quantile == 0.99
+    (spread,) = filter_spread(X, values, choice.scale, quantile=0.99)
     assert choice.filter_spread == (pytest.approx(spread),)
     assert choice.gain == (DEFAULT_GAIN,)
     assert choice.interval_length == (pytest.approx(spread / DEFAULT_GAIN),)
@@ -200,3 +201,31 @@ def test_the_same_data_give_the_same_choice():
     first = MapperBuilder().fit(X).auto_
     second = MapperBuilder().fit(X.copy()).auto_
     assert first == second
+
+
+def test_partial_hausdorff_scale_is_the_quantile_of_distances_to_each_subsample():
+    # Source: the partial Hausdorff distance (Huttenlocher, Klanderman and Rucklidge, IEEE
+    # PAMI 15(9), 1993) is a quantile of the directed distances; computed here by brute force
+    X = np.random.default_rng(5).normal(size=(300, 3))
+    got, m = neighbourhood_scale(X, n_subsamples=4, quantile=0.9, random_state=7)
+    rng = np.random.default_rng(7)
+    want = []
+    for _ in range(4):
+        picked = np.sort(rng.choice(300, size=m, replace=False))
+        dist = squareform(pdist(X))[:, picked].min(axis=1)
+        want.append(np.quantile(dist, 0.9))
+    assert got == pytest.approx(np.mean(want), rel=1e-9)
+
+
+def test_filter_spread_quantile_is_within_one_histogram_bin_of_the_order_statistic():
+    X = np.random.default_rng(6).normal(size=(250, 2))
+    values = X @ np.array([0.6, 0.8])
+    d = squareform(pdist(X))
+    near = (d <= 0.7) & ~np.eye(250, dtype=bool)
+    diffs = np.abs(values[:, None] - values[None, :])[near]
+    (top,) = filter_spread(X, values, 0.7)
+    (got,) = filter_spread(X, values, 0.7, quantile=0.99)
+    assert top == pytest.approx(diffs.max(), rel=1e-9)
+    # the order statistic of rank ceil(0.99 n), read off a histogram: within one bin
+    rank = math.ceil(0.99 * diffs.size) - 1
+    assert abs(got - np.sort(diffs)[rank]) <= top / 4096 + 1e-12

@@ -311,6 +311,12 @@ def _description(desc: dict[str, Any]) -> list[str]:
     return lines
 
 
+def _farthest(quantile: float) -> str:
+    if quantile >= 1:
+        return "the farthest"
+    return f"all but the farthest {(1 - quantile) * 100:.0f}%"
+
+
 def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int) -> str:
     """How the shown graph's settings came about, in words."""
     k, g = shape["n_intervals"][0], shape["overlap"][0]
@@ -322,17 +328,23 @@ def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int)
     given = config["graph"]
     parts = [
         "The graph's settings were chosen from the data by the rule of Carrière, Michel and "
-        f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g} (how far the farthest "
-        f"of {count(chosen['sample_rows'])} rows"
+        f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g} (how far "
+        + _farthest(chosen.get("quantile", 1.0))
+        + f" of {count(chosen['sample_rows'])} rows"
         + (", a seeded sample of all rows," if sampled else "")
-        + f" lies from the nearest of {count(chosen['subsample_rows'])} of them drawn at "
+        + f" lie from the nearest of {count(chosen['subsample_rows'])} of them drawn at "
         f"random, averaged over {plural(chosen['n_subsamples'], 'draw')})"
     ]
     if given["n_intervals"] == "auto":
         parts.append(
-            f"an interval length of {chosen['interval_length'][0]:.3g}: the filter's largest "
-            f"change between rows within that scale ({chosen['filter_spread'][0]:.3g}) divided "
-            f"by the overlap {chosen['gain'][0]:g}"
+            f"an interval length of {chosen['interval_length'][0]:.3g}: the filter's "
+            + (
+                "largest"
+                if chosen.get("quantile", 1.0) >= 1
+                else f"{chosen['quantile'] * 100:g}th-percentile"
+            )
+            + f" change between rows within that scale ({chosen['filter_spread'][0]:.3g}) "
+            f"divided by the overlap {chosen['gain'][0]:g}"
         )
     parts.append(f"which gives {cover}")
     if given["clusterer"] == "auto":
