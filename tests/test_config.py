@@ -82,8 +82,8 @@ def test_defaults_fill_what_the_file_leaves_out(tmp_path: Path) -> None:
     assert cfg.seed == 0
     assert cfg.graph == GraphSettings()
     assert cfg.audit == AuditSettings()
-    assert cfg.graph.n_intervals == 10
-    assert cfg.graph.overlap == 0.3
+    assert (cfg.graph.n_intervals, cfg.graph.overlap, cfg.graph.clusterer) == ("auto",) * 3
+    assert cfg.graph.resamples == 50
     assert cfg.graph.filter == "pca"
     assert cfg.audit.fdr == 0.05
     assert cfg.audit.stability_intervals == (-2, 0, 2)
@@ -183,7 +183,7 @@ def test_to_dict_is_json_serialisable(tmp_path: Path) -> None:
     assert out["data"]["features"] == ["a"]
     assert out["data"]["categorical"] == {"a": "ordinal"}
     assert out["releases"] == [{"name": "2026.1", "score": "score_2026_1", "threshold": 0.5}]
-    assert out["graph"]["n_intervals"] == 10
+    assert out["graph"]["n_intervals"] == "auto"
     assert out["audit"]["stability_overlaps"] == [-0.1, 0.0, 0.1]
 
 
@@ -412,3 +412,23 @@ def test_an_unknown_release_name_lists_the_releases() -> None:
         ConfigError, match=message("No release 'c' in the config; its releases are 'a', 'b'.")
     ):
         cfg.release("c")
+
+
+@pytest.mark.parametrize(
+    ("graph", "message"),
+    [
+        ('n_intervals = "automatic"', "key 'graph.n_intervals' must be one of 'auto' or an int"),
+        ("overlap = 1.0", "key 'graph.overlap' must be one of 'auto' or a number in the range"),
+        ('clusterer = "Auto"', "key 'graph.clusterer' must be one of 'auto', 'single_linkage'"),
+        ("resamples = -1", "key 'graph.resamples' must be an int in the range [0, 1000]"),
+    ],
+    ids=["intervals-word", "overlap-one", "clusterer-case", "negative-resamples"],
+)
+def test_graph_settings_take_auto_or_a_number_and_say_so(tmp_path: Path, graph, message) -> None:
+    with pytest.raises(ConfigError, match=re.escape(message)):
+        load_config(write(tmp_path, MINIMAL + f"\n[graph]\n{graph}\n"))
+
+
+def test_graph_settings_keep_given_numbers(tmp_path: Path) -> None:
+    cfg = load_config(write(tmp_path, MINIMAL + "\n[graph]\nn_intervals = 12\noverlap = 0.25\n"))
+    assert (cfg.graph.n_intervals, cfg.graph.overlap, cfg.graph.clusterer) == (12, 0.25, "auto")
