@@ -310,7 +310,8 @@ def test_a_section_of_the_wrong_kind_is_refused(section: str, value: Any) -> Non
 def check_invariants(cfg: Config) -> None:
     """What every accepted config satisfies, whatever was written."""
     g, a = cfg.graph, cfg.audit
-    assert 1 <= g.n_intervals <= MAX_INTERVALS and 0 <= g.overlap < 1
+    assert g.n_intervals == "auto" or 1 <= g.n_intervals <= MAX_INTERVALS
+    assert g.overlap == "auto" or 0 <= g.overlap < 1
     assert all(0 < r.threshold < 1 for r in cfg.releases)
     assert 0 < a.fdr < 1 and 0 < a.match_jaccard <= 1
     assert all(math.isfinite(o) and -1 < o < 1 for o in a.stability_overlaps)
