@@ -33,6 +33,7 @@ from topoaudit.limits import (
     MAX_INTERVALS,
     MAX_RELEASES,
     MAX_STABILITY_OFFSETS,
+    MIN_CELL_ROWS,
 )
 
 __all__ = [
@@ -182,7 +183,7 @@ class AuditSettings:
 
     _checks = {
         "fdr": [Interval(float, 0.0, 1.0, closed="neither")],
-        "min_rows": [Interval(int, 1, None)],
+        "min_rows": [Interval(int, MIN_CELL_ROWS, None)],
         "node_rows": [Interval(int, 10, None)],
         "search_intervals": [Interval(int, 1, MAX_INTERVALS)],
         "local_model": [Choice(("logistic", "tree", "boosting", "ridge"))],

@@ -20,6 +20,7 @@ __all__ = [
     "MAX_RELEASES",
     "MAX_ROWS",
     "MAX_STABILITY_OFFSETS",
+    "MIN_CELL_ROWS",
 ]
 
 #: Rows of a validation table (after reading, before dropping missing values).
@@ -40,6 +41,9 @@ MAX_INTERVALS = 1_000
 MAX_MEMBERSHIPS = 25 * MAX_ROWS
 #: Nodes of one Mapper graph.
 MAX_GRAPH_NODES = 200_000
+#: Fewest rows behind a statistic that leaves a bundle (pages, diffs, the site): a smaller
+#: node, region, bin or half shows its size only (small-cell suppression).
+MIN_CELL_ROWS = 10
 #: Nodes drawn in the graph view of a page; a larger graph is drawn in part, and says so.
 MAX_NODES_DRAWN = 2_000
 #: Size of an audit config file.

@@ -1,5 +1,8 @@
 """What changed between two bundles: headline metrics, weak regions gained and lost.
 
+Both audits are read through their public view (:mod:`topoaudit.bundle`): a weak region
+of fewer than ``MIN_CELL_ROWS`` rows keeps its size and loses its statistics.
+
 Weak regions of the two audits are matched by the Jaccard index of their row ids (from
 each bundle's ``members.parquet``): a pair with Jaccard at least 0.5 is the same weak
 region seen again; a region of the later audit with no match was gained, one of the
@@ -14,6 +17,7 @@ from typing import Any
 
 import pandas as pd
 
+from topoaudit.bundle import public_view
 from topoaudit.errors import DataError
 
 __all__ = ["HEADLINES", "bundle_diff"]
@@ -33,7 +37,7 @@ HEADLINES = {
 
 def _load(folder: Path) -> tuple[dict[str, Any], pd.DataFrame]:
     try:
-        analysis = json.loads((folder / "analysis.json").read_text(encoding="utf-8"))
+        analysis = public_view(json.loads((folder / "analysis.json").read_text(encoding="utf-8")))
         members = pd.read_parquet(folder / "members.parquet", columns=["id", "weak_regions"])
     except (OSError, ValueError) as exc:
         raise DataError(f"{folder}: not a readable bundle ({exc}).") from exc

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from topoaudit.bundle import MIN_CELL_ROWS, is_small
 from topoaudit.report.text import count, escape, pvalue, rate, signed
 
 __all__ = ["diff_markdown"]
@@ -54,10 +55,15 @@ def diff_markdown(d: dict[str, Any], *, heading: str = "##") -> str:
             return [f"{title}: none.", ""]
         out = [f"{title}:", ""]
         for w in items:
+            stats = (
+                f"statistics not shown (fewer than {MIN_CELL_ROWS} rows)"
+                if is_small(w["rows"])
+                else f"observed / promised {rate(w['ratio'], 2)}, adjusted p-value "
+                f"{pvalue(w['p_adjusted'])}"
+            )
             out.append(
                 f"- {escape(w['id'])}: {count(w['rows'])} rows, "
-                f"{escape(w['kind'].replace('_', ' '))}s, observed / promised "
-                f"{rate(w['ratio'], 2)}, adjusted p-value {pvalue(w['p_adjusted'])}"
+                f"{escape(w['kind'].replace('_', ' '))}s, {stats}"
             )
         return [*out, ""]
 

@@ -42,6 +42,7 @@ import numpy as np
 import pandas as pd
 
 from topoaudit import limits
+from topoaudit.bundle import MIN_CELL_ROWS, public_graph, public_view
 from topoaudit.report import views
 from topoaudit.report.text import (
     code_fence,
@@ -58,7 +59,6 @@ from topoaudit.report.text import (
 __all__ = ["MIN_CELL_ROWS", "Page", "build_page", "drawn_graph", "node_layout", "render_bundle"]
 
 #: Fewest rows behind any rate, mean or description a page shows (small-cell suppression).
-MIN_CELL_ROWS = 10
 NOT_SHOWN = f"not shown (fewer than {MIN_CELL_ROWS} rows)"
 
 STANDING_CAUTIONS = (
@@ -453,7 +453,9 @@ def _on_feature(w: dict[str, Any]) -> list[str]:
 
 
 def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
-    """Build the page of analysis ``a`` (the parsed analysis.json)."""
+    """Build the page of analysis ``a`` (the parsed analysis.json) from its public view:
+    no statistic of a cell of fewer than ``MIN_CELL_ROWS`` rows reaches the page."""
+    a, graph = public_view(a), public_graph(graph)
     key, label = _headline(a["task"])
     charts: dict[str, dict[str, Any]] = {}
     lines: list[str] = []

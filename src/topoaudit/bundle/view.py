@@ -1,0 +1,114 @@
+"""The public view of an audit: its aggregates, with small-cell suppression applied once.
+
+Every output that leaves a bundle (the release page, the pull-request diff, the site)
+reads this view, not ``analysis.json`` itself. A *cell* is any group of rows behind a
+statistic: a graph node, a region, a weak region and each of its halves, a calibration
+bin, a region of the release comparison, a candidate region, a feature of the shape.
+A cell of fewer than :data:`~topoaudit.limits.MIN_CELL_ROWS` rows keeps its size and
+its name and loses every statistic: each becomes ``None``, which the pages print as
+"not shown". Its rows could otherwise be read back from a rate, a mean or a difference
+of means (the small-cell rule of statistical disclosure control; common practice, no
+source).
+
+The view is a new pair of dicts; the inputs are not changed.
+"""
+
+from __future__ import annotations
+
+import copy
+from typing import Any
+
+from topoaudit.limits import MIN_CELL_ROWS
+
+__all__ = ["MIN_CELL_ROWS", "is_small", "public_graph", "public_view"]
+
+#: the keys of a cell that are its size, its name or its place, kept when its statistics go
+_KEPT = frozenset(
+    {
+        "id",
+        "rows",
+        "region",
+        "nodes",
+        "kind",
+        "graph",
+        "name",
+        "main",
+        "weak_regions",
+        "also_found",
+        "tested",
+        "confirmed",
+        "verdict",
+        "tip_node",
+        "share_of_rows",
+        "on_feature",
+    }
+)
+_SIZES = frozenset({"id", "rows", "region", "name"})
+
+
+def is_small(rows: Any) -> bool:
+    """True when a cell of ``rows`` rows is too small to show a statistic of."""
+    return rows is None or rows < MIN_CELL_ROWS
+
+
+def _blank(value: Any, keep: frozenset[str] = _KEPT) -> Any:
+    """``value`` with every number that is not a size, a name or a place set to None."""
+    if isinstance(value, dict):
+        return {k: v if k in keep else _blank(v, _SIZES) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_blank(v, _SIZES) for v in value]
+    if isinstance(value, bool | str) or value is None:
+        return value
+    return None
+
+
+def _suppress(cells: list[dict[str, Any]] | None) -> None:
+    for i, cell in enumerate(cells or []):
+        if is_small(cell.get("rows")):
+            cells[i] = _blank(cell)  # type: ignore[index]
+
+
+def _halves(w: dict[str, Any]) -> None:
+    for half in ("discovery", "confirmation"):
+        if isinstance(w.get(half), dict) and is_small(w[half].get("rows")):
+            w[half] = _blank(w[half], _SIZES)
+    if isinstance(w.get("confirmation"), dict) and is_small(w["confirmation"].get("rows")):
+        w["effect"] = None
+
+
+def public_view(analysis: dict[str, Any]) -> dict[str, Any]:
+    """A copy of ``analysis`` (the parsed analysis.json) with small cells suppressed.
+
+    Examples
+    --------
+    >>> a = {"regions": [{"id": 1, "rows": 4, "metrics": {"error_rate": {"value": 0.5}}}]}
+    >>> public_view(a)["regions"][0]
+    {'id': 1, 'rows': 4, 'metrics': {'error_rate': {'value': None}}}
+    """
+    out = copy.deepcopy(analysis)
+    _suppress(out.get("regions"))
+    for r in out.get("regions") or []:
+        if isinstance(r.get("calibration"), list):
+            _suppress(r["calibration"])
+    weak = out.get("weak_regions") or []
+    for i, w in enumerate(weak):
+        if is_small(w.get("rows")):
+            weak[i] = {**_blank(w), "description": None}
+        else:
+            _halves(w)
+    for c in out.get("candidates") or []:
+        _halves(c)
+    if out.get("comparison"):
+        _suppress(out["comparison"].get("regions"))
+    shape = (out.get("graph") or {}).get("shape") or {}
+    for f in shape.get("features") or []:
+        if is_small(f.get("rows")):
+            f["columns"] = []
+    return out
+
+
+def public_graph(graph: dict[str, Any]) -> dict[str, Any]:
+    """A copy of ``graph`` (the parsed graph.json) whose small nodes carry no statistic."""
+    out = copy.deepcopy(graph)
+    _suppress(out.get("nodes"))
+    return out
