@@ -16,9 +16,8 @@ import numpy as np
 import pandas as pd
 
 from topoaudit.config import Config
-from topoaudit.errors import DataError, LimitError, TopoauditError, closest_names
+from topoaudit.errors import DataError, LimitError, TopoauditError, closest_names, describe_rows
 from topoaudit.limits import MAX_CATEGORY_LEVELS, MAX_FEATURES, MAX_MAGNITUDE, MAX_ROWS
-from topoaudit.mapper._input import describe_rows
 
 __all__ = ["Dataset", "fingerprint", "load_dataset", "prepare_dataset", "read_table"]
 

@@ -22,6 +22,7 @@ __all__ = [
     "TopoauditError",
     "UnknownNameError",
     "closest_names",
+    "describe_rows",
 ]
 
 
@@ -80,3 +81,19 @@ def unknown_name(kind: str, name: str, choices: Iterable[str]) -> UnknownNameErr
     hint = f" Did you mean {' or '.join(repr(c) for c in near)}?" if near else ""
     msg = f"Unknown {kind} {name!r}; the known {kind}s are {', '.join(map(repr, choices))}.{hint}"
     return UnknownNameError(msg)
+
+
+def describe_rows(rows: Iterable[int], limit: int = 5) -> str:
+    """``"rows 3, 17 and 2 more"``: row positions for an error message.
+
+    Examples
+    --------
+    >>> describe_rows([3, 17, 20, 21, 30, 31, 40])
+    'rows 3, 17, 20, 21, 30 and 2 more'
+    >>> describe_rows([4])
+    'row 4'
+    """
+    rows = [int(r) for r in rows]
+    shown = ", ".join(str(r) for r in rows[:limit])
+    more = f" and {len(rows) - limit} more" if len(rows) > limit else ""
+    return f"row{'s' if len(rows) > 1 else ''} {shown}{more}"

@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from topoaudit.errors import DataError
-from topoaudit.mapper._input import as_matrix, describe_rows
+from topoaudit.errors import DataError, describe_rows
+from topoaudit.mapper._input import as_matrix
 
 
 @pytest.mark.parametrize(

@@ -33,7 +33,7 @@ from topoaudit.audit.search import SearchSettings, search_graphs
 from topoaudit.audit.shape import ShapeFeatureView, describe_shape, place_on_features
 from topoaudit.audit.stability import stability_runs
 from topoaudit.audit.weak import (
-    Finding,
+    CandidateRegion,
     binary_losses,
     find_weak_regions,
     merge_confirmed,
@@ -160,7 +160,7 @@ def _metrics(
     return metrics_as_dict(m)
 
 
-def _finding_dict(f: Finding) -> dict[str, Any]:
+def _finding_dict(f: CandidateRegion) -> dict[str, Any]:
     return {
         "graph": f.graph,
         "kind": f.kind,

@@ -49,7 +49,7 @@ from topoaudit.audit.stats import benjamini_hochberg, binomial_upper_test, permu
 from topoaudit.mapper.graph import MapperGraph
 
 __all__ = [
-    "Finding",
+    "CandidateRegion",
     "HalfEstimate",
     "Losses",
     "binary_losses",
@@ -119,22 +119,22 @@ def split_halves(
 def scan_statistic(observed: float, expected: float, total: float) -> float:
     """Kulldorff's Poisson log-likelihood ratio of a region (0 unless ``O > E``).
 
+    The scalar form of :func:`_llr`, with the same guards.
+
     Examples
     --------
     >>> round(scan_statistic(30, 20, 100), 4)
     2.8168
     """
-    o, e, n = float(observed), float(expected), float(total)
-    if o <= e or e <= 0 or n <= 0:
+    if float(total) <= 0:
         return 0.0
-    inside = o * np.log(o / e)
-    rest_o, rest_e = n - o, n - e
-    outside = rest_o * np.log(rest_o / rest_e) if rest_o > 0 and rest_e > 0 else 0.0
-    return float(inside + outside)
+    return float(_llr(np.array([float(observed)]), np.array([float(expected)]), float(total))[0])
 
 
 def _llr(observed: np.ndarray, expected: np.ndarray, total: float) -> np.ndarray:
-    """:func:`scan_statistic` over arrays of (observed, expected) pairs."""
+    """Kulldorff's Poisson log-likelihood ratio for arrays of (observed, expected) pairs:
+    ``O log(O/E) + (N - O) log((N - O)/(N - E))`` where ``O > E > 0``, else 0; the second
+    term is 0 when either rest is empty."""
     o = np.asarray(observed, dtype=float)
     e = np.asarray(expected, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -176,8 +176,9 @@ class HalfEstimate:
 
 
 @dataclass(frozen=True, eq=False)
-class Finding:
-    """One candidate weak region, with its discovery and confirmation results."""
+class CandidateRegion:
+    """One candidate weak region, with its discovery and confirmation results (a weak
+    region when confirmed)."""
 
     graph: str
     kind: str
@@ -380,14 +381,14 @@ def find_weak_regions(
     max_candidates: int = 5,
     n_permutations: int = 2000,
     random_state: int = 0,
-) -> list[Finding]:
+) -> list[CandidateRegion]:
     """Search every graph for candidates on the discovery half and test them on the other.
 
     Returns every candidate (tested or too small), in a stable order: graph, kind, then
     discovery LLR descending. See the module docstring for the method.
     """
     confirmation = ~discovery
-    out: list[Finding] = []
+    out: list[CandidateRegion] = []
     for search in graphs:
         name, graph = search.name, search.graph
         for loss in losses:
@@ -426,7 +427,7 @@ def find_weak_regions(
                         random_state=random_state,
                     )
                 out.append(
-                    Finding(
+                    CandidateRegion(
                         graph=name,
                         kind=loss.kind,
                         nodes=nodes,
@@ -450,7 +451,9 @@ def find_weak_regions(
     return out
 
 
-def merge_confirmed(findings: Sequence[Finding], *, share: float = 0.5) -> list[Finding]:
+def merge_confirmed(
+    findings: Sequence[CandidateRegion], *, share: float = 0.5
+) -> list[CandidateRegion]:
     """The confirmed findings with repeats merged: a finding that shares at least
     ``share`` of the smaller row set with another is the same weak region; the one with
     the smallest adjusted p-value (then the largest LLR) is kept and names the others in
@@ -458,7 +461,7 @@ def merge_confirmed(findings: Sequence[Finding], *, share: float = 0.5) -> list[
     confirmed = sorted(
         (f for f in findings if f.confirmed), key=lambda f: (f.p_adjusted, -f.llr, f.graph, f.kind)
     )
-    kept: list[Finding] = []
+    kept: list[CandidateRegion] = []
     for f in confirmed:
         for i, k in enumerate(kept):
             if _overlap(f.rows, k.rows) >= share:

@@ -6,10 +6,10 @@ from typing import Any
 
 import numpy as np
 
-from topoaudit.errors import DataError
+from topoaudit.errors import DataError, describe_rows
 from topoaudit.limits import MAX_MAGNITUDE
 
-__all__ = ["MAX_MAGNITUDE", "as_matrix", "describe_rows", "within_magnitude"]
+__all__ = ["MAX_MAGNITUDE", "as_matrix", "within_magnitude"]
 
 
 def within_magnitude(arr: np.ndarray) -> bool:
@@ -19,14 +19,6 @@ def within_magnitude(arr: np.ndarray) -> bool:
         return True
     lo, hi = arr.min(), arr.max()
     return bool(lo >= -MAX_MAGNITUDE and hi <= MAX_MAGNITUDE)
-
-
-def describe_rows(rows: np.ndarray, limit: int = 5) -> str:
-    """``"rows 3, 17 and 2 more"`` for an array of row positions."""
-    rows = np.asarray(rows)
-    shown = ", ".join(str(int(r)) for r in rows[:limit])
-    more = f" and {rows.size - limit} more" if rows.size > limit else ""
-    return f"row{'s' if rows.size > 1 else ''} {shown}{more}"
 
 
 def _numeric_column(dtype: Any) -> bool:
