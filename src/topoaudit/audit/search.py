@@ -16,7 +16,8 @@ Two graphs are searched; each finding names the one it came from.
 The lens is made in three steps, all from discovery labels only:
 
 1. a gradient-boosting model of the excess (scikit-learn's
-   ``HistGradientBoostingRegressor``, k-fold on the discovery half) and the permutation
+   ``HistGradientBoostingRegressor``, k-fold on a seeded sample of at most 20,000 rows of
+   the discovery half) and the permutation
    importance of each feature on the held-out folds (Breiman, 2001). A feature is kept
    when its mean importance exceeds three standard errors and a quarter of the largest;
    kept features get weight 1, the others 0 (all features, if none is kept);

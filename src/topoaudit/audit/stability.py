@@ -6,8 +6,8 @@ and over seeded subsamples of 80% of the rows (drawn without replacement, so no 
 appears twice in a graph). In each run, a weak region counts as found again when some
 confirmed region of that run overlaps it with Jaccard at least ``match_jaccard`` (0.5),
 measured on the rows the run used. The share of runs in which it was found again is its
-stability. The invariants of the graph shown for the data's shape are recorded for each
-grid setting too.
+stability. (The invariants of the graph shown for the data's shape at the same offsets
+are recorded by :func:`topoaudit.audit.run.run_audit`, not here.)
 """
 
 from __future__ import annotations
