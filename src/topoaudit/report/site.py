@@ -45,13 +45,18 @@ log = logging.getLogger(__name__)
 
 
 def _template_dir() -> Path:
-    here = Path(__file__).resolve()
-    for parent in here.parents:
-        candidate = parent / "site_template"
-        if (candidate / "mkdocs.yml").exists():
+    """The mkdocs template folder: ``topoaudit/_site_template`` in an installed wheel (the
+    top-level ``site_template/`` shipped as package data), else, in an editable install,
+    ``site_template/`` of the checkout that holds ``src/topoaudit``."""
+    package = Path(str(resources.files("topoaudit")))
+    candidates = (package / "_site_template", package.parent.parent / "site_template")
+    for candidate in candidates:
+        if (candidate / "mkdocs.yml").is_file():
             return candidate
-    packaged = resources.files("topoaudit").joinpath("site_template")
-    return Path(str(packaged))
+    raise FileNotFoundError(
+        f"the site template (mkdocs.yml) is in neither {candidates[0]} nor {candidates[1]}; "
+        "reinstall topoaudit."
+    )
 
 
 def _models(archive: Path) -> list[str]:
