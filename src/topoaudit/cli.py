@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import shutil
 import sys
-import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -38,29 +37,16 @@ def _prefixed(say: ProgressLine, prefix: str):
 def _write_bundle(audit, out: Path) -> None:
     """Write the bundle, its page and its checksums beside ``out``, then rename it into place.
 
-    Killed part-way, only a hidden ``.<name>.*`` folder is left, which the next write to
-    the same place removes; ``out`` appears complete or not at all.
+    Killed part-way, only a hidden ``.<name>.partial-*`` folder is left, which the next
+    write to the same place removes; ``out`` appears complete or not at all.
     """
-    from topoaudit.report.archive import locked, unlocked, write_checksums
+    from topoaudit.report.archive import staging, write_checksums
     from topoaudit.report.page import render_bundle
 
-    out.parent.mkdir(parents=True, exist_ok=True)
-    prefix = f".{out.name}.partial-"
-    for stale in out.parent.glob(prefix + "*"):
-        if stale.is_dir() and not stale.is_symlink() and unlocked(stale / ".lock"):
-            shutil.rmtree(stale, ignore_errors=True)
-    tmp = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
-    try:
-        with locked(tmp / ".lock"):
-            staged = tmp / "bundle"
-            audit.write(staged)
-            render_bundle(staged)
-            write_checksums(staged)
-            if out.exists():
-                out.rmdir()
-            staged.rename(out)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
+    with staging(out, name="bundle") as stage:
+        audit.write(stage.path)
+        render_bundle(stage.path)
+        write_checksums(stage.path)
 
 
 def _summary(result) -> str:

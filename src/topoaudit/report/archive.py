@@ -17,6 +17,11 @@ old or the new release, never a mixture; an old bundle caught between the exchan
 its filing stays complete in its ``.incoming-*`` folder, is reported by
 :func:`verify_archive` as pending, and is filed by the next publish.
 
+Every folder the tool writes (a bundle, a release, a site) is made the same way, by
+:func:`staging`: written in a hidden work folder beside its target, with the work folder's
+``.lock`` held, flushed, and committed with one rename or exchange; leftovers of runs
+that died are swept by the next run.
+
 Nothing here follows a symbolic link: a bundle or an archive that contains one is
 refused, so no input can make the tool read or write outside the folders it was given.
 """
@@ -26,6 +31,7 @@ from __future__ import annotations
 import contextlib
 import ctypes
 import errno
+import functools
 import hashlib
 import json
 import os
@@ -34,7 +40,7 @@ import shutil
 import stat
 import sys
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -50,13 +56,17 @@ except ImportError:  # pragma: no cover
 
 __all__ = [
     "CHECKSUMS",
+    "LOCK",
     "ArchiveError",
     "Finding",
+    "Stage",
     "Verification",
     "bundle_findings",
     "check_name",
     "list_releases",
     "publish",
+    "staging",
+    "sweep",
     "verify_archive",
     "write_checksums",
 ]
@@ -65,7 +75,7 @@ CHECKSUMS = "checksums.json"
 PUBLISHED = "published.json"
 HISTORY = ".history"
 INCOMING = ".incoming-"
-LOCK = ".lock"
+LOCK = ".lock"  # the flock(2) file of the archive and of every work folder
 _INTENT = "intent.json"
 
 
@@ -144,25 +154,30 @@ def write_file(path: Path, text: str) -> None:
     os.replace(tmp, path)
 
 
-def _copy_durably(src: str, dst: str) -> str:
-    shutil.copyfile(src, dst)
-    fsync_path(Path(dst))
-    return dst
+def _flush_tree(folder: Path) -> None:
+    """Flush every file and folder under ``folder`` to disk (fsync(2))."""
+    for root, _dirs, names in os.walk(folder):
+        for name in names:
+            fsync_path(Path(root) / name)
+        fsync_path(Path(root), directory=True)
 
 
 def _copy_tree(src: Path, dst: Path) -> None:
-    """Copy a bundle's plain files (links refused), each flushed to disk."""
+    """Copy a bundle's plain files (links refused); :meth:`Stage.commit` flushes them."""
     _files(src)  # refuses links and special files before anything is copied
-    shutil.copytree(src, dst, copy_function=_copy_durably)
-    for root, _dirs, _names in os.walk(dst):
-        fsync_path(Path(root), directory=True)
+    shutil.copytree(src, dst, copy_function=shutil.copyfile)
+
+
+def _parked(a: Path) -> Path:
+    """Where the fallback of :func:`exchange_folders` parks ``b`` while it swaps."""
+    return a.with_name(a.name + ".swap")
 
 
 def exchange_folders(a: Path, b: Path) -> None:
     """Swap two folders atomically (``renameat2`` with RENAME_EXCHANGE where available).
 
-    Elsewhere it falls back to three renames through ``<a>.swap``; :func:`_recover` puts
-    back whatever an interruption of those leaves.
+    Elsewhere it falls back to three renames through ``<a>.swap``; the ``recover`` step of
+    :func:`sweep` puts back whatever an interruption of those leaves.
     """
     sys.audit("topoaudit.exchange", str(a), str(b))
     func = getattr(ctypes.CDLL(None, use_errno=True), "renameat2", None)
@@ -173,7 +188,7 @@ def exchange_folders(a: Path, b: Path) -> None:
         code = ctypes.get_errno()
         if code not in (errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP):
             raise OSError(code, os.strerror(code), str(a), None, str(b))
-    swap = a.with_name(a.name + ".swap")
+    swap = _parked(a)
     os.rename(b, swap)
     try:
         os.rename(a, b)
@@ -209,6 +224,116 @@ def unlocked(path: Path) -> bool:
     finally:
         os.close(fd)
     return True
+
+
+# -- staging -----------------------------------------------------------------------------
+
+
+def sweep(parent: Path, prefix: str, recover: Callable[[Path], None]) -> None:
+    """Remove the work folders ``<parent>/<prefix>*`` whose lock is free, each after ``recover``.
+
+    A free lock means the run that made the folder finished or died (the kernel releases a
+    flock(2) with its holder); ``recover(work)`` first moves out whatever of value an
+    interrupted commit left there. A folder whose lock is held belongs to a live run and is
+    left alone.
+    """
+    for work in sorted(parent.glob(prefix + "*")):
+        if work.is_dir() and not work.is_symlink() and unlocked(work / LOCK):
+            recover(work)
+            shutil.rmtree(work, ignore_errors=True)
+
+
+def _put_back(target: Path, name: str, work: Path) -> None:
+    """Put back a ``target`` that an interrupted fallback exchange parked in ``work``."""
+    parked = _parked(work / name)
+    if parked.is_dir() and not target.exists():
+        os.rename(parked, target)
+
+
+class Stage:
+    """The work folder of one :func:`staging` run, beside ``target`` and locked.
+
+    The run writes the new folder into :attr:`path` (``work/<name>``); :attr:`work` may
+    hold its scratch files besides.
+    """
+
+    def __init__(self, target: Path, work: Path, name: str) -> None:
+        self.target = target
+        self.work = work
+        self.path = work / name
+        self.committed = False
+
+    def commit(self) -> Path | None:
+        """Flush :attr:`path` to disk and put it in place of the target in one step.
+
+        A new target is made by ``os.rename``; an existing one is swapped with
+        :func:`exchange_folders`, after which the old target lies at :attr:`path`.
+
+        Returns
+        -------
+        Path or None
+            Where the replaced target now lies, or None if there was none.
+        """
+        if self.committed:
+            raise ArchiveError(f"{self.target}: this staged folder is already committed.")
+        _flush_tree(self.path)
+        replaced = self.target.exists()
+        if replaced:
+            exchange_folders(self.path, self.target)
+        else:
+            os.rename(self.path, self.target)
+        self.committed = True
+        fsync_path(self.target.parent, directory=True)
+        return self.path if replaced else None
+
+
+@contextlib.contextmanager
+def staging(
+    target: str | Path,
+    *,
+    prefix: str | None = None,
+    name: str = "staged",
+    recover: Callable[[Path], None] | None = None,
+) -> Iterator[Stage]:
+    """Build the folder ``target`` beside it and put it in place whole, or not at all.
+
+    Sweeps the leftovers ``<prefix>*`` beside ``target`` whose lock is free (see
+    :func:`sweep`; by default ``recover`` puts back a target that an interrupted fallback
+    exchange parked), makes a new work folder ``<prefix><random>`` there and holds its
+    ``.lock``, and yields its :class:`Stage`, whose ``path`` the block writes. When the
+    block ends, the stage is committed (unless the block did so itself, to act on the
+    replaced target while the lock is held) and the work folder removed.
+
+    If the block raises before the commit, the work folder is removed and the target is
+    untouched. If it raises after, the work folder, which then holds the old target, is
+    left to the next run's ``recover``.
+
+    Parameters
+    ----------
+    target : str or Path
+        The folder to make or replace; its parent is created if missing.
+    prefix : str, default=None
+        Name prefix of the work folders; None means ``.<target name>.partial-``.
+    name : str, default="staged"
+        Name of the staged folder inside the work folder.
+    recover : callable, default=None
+        Called with each free leftover work folder before it is removed.
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    prefix = prefix or f".{target.name}.partial-"
+    sweep(target.parent, prefix, recover or functools.partial(_put_back, target, name))
+    stage = Stage(target, Path(tempfile.mkdtemp(prefix=prefix, dir=target.parent)), name)
+    try:
+        with locked(stage.work / LOCK):
+            yield stage
+            if not stage.committed:
+                stage.commit()
+    except BaseException:
+        if not stage.committed and not _parked(stage.path).exists():
+            shutil.rmtree(stage.work, ignore_errors=True)
+        raise
+    shutil.rmtree(stage.work, ignore_errors=True)
 
 
 # -- checksums ---------------------------------------------------------------------------
@@ -361,19 +486,15 @@ def _replaced_bundle(tmp: Path) -> Path | None:
     return None
 
 
-def _recover(model_dir: Path) -> None:
-    """Finish or undo publishes of ``model_dir`` that were interrupted (lock held)."""
-    for tmp in sorted(model_dir.glob(INCOMING + "*")):
-        if not unlocked(tmp / LOCK):
-            continue
-        old = _replaced_bundle(tmp)
-        if old is not None:
-            release = check_name("release", _read_json(tmp / _INTENT).get("release"))
-            if not (model_dir / release).exists():
-                os.rename(old, model_dir / release)  # the fallback exchange stopped half-way
-            else:
-                _file_in_history(old, model_dir, release)
-        shutil.rmtree(tmp)
+def _finish_replace(model_dir: Path, tmp: Path) -> None:
+    """File the old bundle an interrupted replace left in ``tmp``, or put it back."""
+    old = _replaced_bundle(tmp)
+    if old is not None:
+        release = check_name("release", _read_json(tmp / _INTENT).get("release"))
+        if not (model_dir / release).exists():
+            os.rename(old, model_dir / release)  # the fallback exchange stopped half-way
+        else:
+            _file_in_history(old, model_dir, release)
 
 
 def _checksums_digest(folder: Path) -> str | None:
@@ -422,7 +543,8 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
         if model_dir.is_symlink():
             raise ArchiveError(f"{model_dir}: is a symbolic link; archives may not hold links.")
         model_dir.mkdir(exist_ok=True)
-        _recover(model_dir)
+        finish = functools.partial(_finish_replace, model_dir)
+        sweep(model_dir, INCOMING, finish)  # the leftovers of every release, not only this one
         dest = model_dir / release
         if dest.is_symlink():
             raise ArchiveError(f"{dest}: is a symbolic link; archives may not hold links.")
@@ -434,38 +556,25 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
                 "--replace to replace it (the old bundle is kept in the archive's history)."
             )
             raise ArchiveError(msg)
-        tmp = Path(tempfile.mkdtemp(prefix=f"{INCOMING}{release}-", dir=model_dir))
-        committed = False
-        try:
-            with locked(tmp / LOCK):
-                staged = tmp / "bundle"
-                _copy_tree(bundle, staged)
-                if (staged / CHECKSUMS).exists():
-                    refuse_changed(staged)
-                if not (staged / "page.md").exists():
-                    render_bundle(staged)
-                sequence = 1 + max(_sequences(model_dir), default=0)
-                write_file(
-                    staged / PUBLISHED,
-                    canonical_json({"sequence": sequence, "published": build_date()}),
-                )
-                write_checksums(staged)
-                if dest.exists():
-                    intent = {"release": release, "new": _checksums_digest(staged)}
-                    write_file(tmp / _INTENT, canonical_json(intent))
-                    exchange_folders(staged, dest)
-                    committed = True
-                    fsync_path(model_dir, directory=True)
-                    _file_in_history(staged, model_dir, release)
-                else:
-                    os.rename(staged, dest)
-                    committed = True
-                    fsync_path(model_dir, directory=True)
-        except BaseException:
-            if not committed:  # nothing changed: drop the copy; else the next publish files it
-                shutil.rmtree(tmp, ignore_errors=True)
-            raise
-        shutil.rmtree(tmp)
+        with staging(dest, prefix=f"{INCOMING}{release}-", name="bundle", recover=finish) as stage:
+            staged = stage.path
+            _copy_tree(bundle, staged)
+            if (staged / CHECKSUMS).exists():
+                refuse_changed(staged)
+            if not (staged / "page.md").exists():
+                render_bundle(staged)
+            sequence = 1 + max(_sequences(model_dir), default=0)
+            write_file(
+                staged / PUBLISHED,
+                canonical_json({"sequence": sequence, "published": build_date()}),
+            )
+            write_checksums(staged)
+            if dest.exists():
+                intent = {"release": release, "new": _checksums_digest(staged)}
+                write_file(stage.work / _INTENT, canonical_json(intent))
+            old = stage.commit()
+            if old is not None:  # a failure from here on leaves it for the next publish
+                _file_in_history(old, model_dir, release)
     return dest
 
 

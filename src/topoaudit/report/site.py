@@ -13,9 +13,7 @@ from __future__ import annotations
 import html
 import json
 import logging
-import os
 import shutil
-import tempfile
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -25,14 +23,12 @@ from topoaudit.audit.result import build_date, canonical_json
 from topoaudit.progress import Progress
 from topoaudit.report.archive import (
     ArchiveError,
+    Stage,
     check_name,
-    exchange_folders,
-    fsync_path,
     list_releases,
-    locked,
     publish,
     refuse_changed,
-    unlocked,
+    staging,
 )
 from topoaudit.report.diff import diff_markdown
 from topoaudit.report.text import count, escape, rate
@@ -86,17 +82,6 @@ def _check_output(out: Path, archive: Path) -> None:
             "file); choose a new or empty folder, so that nothing else is replaced."
         )
         raise ArchiveError(msg)
-
-
-def _clean_leftovers(parent: Path, prefix: str, out: Path) -> None:
-    """Remove build folders of builds that died; put back a site a fallback swap parked."""
-    for work in sorted(parent.glob(prefix + "*")):
-        if not work.is_dir() or work.is_symlink() or not unlocked(work / ".lock"):
-            continue
-        parked = work / "site.swap"
-        if parked.is_dir() and not out.exists():
-            os.rename(parked, out)
-        shutil.rmtree(work, ignore_errors=True)
 
 
 def _history_page(model: str, rels: list[dict[str, Any]]) -> str:
@@ -154,35 +139,27 @@ def build_site(
     if archive.is_symlink() or not archive.is_dir():
         raise ArchiveError(f"{archive}: no such archive folder (or it is a symbolic link).")
     template = _template_dir()
-    out.parent.mkdir(parents=True, exist_ok=True)
-    prefix = f".{out.name}-build-"
-    _clean_leftovers(out.parent, prefix, out)
     _check_output(out, archive)
-    work = Path(tempfile.mkdtemp(prefix=prefix, dir=out.parent))
-    try:
-        with locked(work / ".lock"):
-            _build_into(
-                work, archive, out, template, site_name, row_ids, progress or (lambda _m: None)
-            )
-    finally:
-        shutil.rmtree(work, ignore_errors=True)
+    # the staged folder is named after the template's site_dir, where mkdocs writes
+    with staging(out, prefix=f".{out.name}-build-", name="site") as stage:
+        _build_into(stage, archive, template, site_name, row_ids, progress or (lambda _m: None))
     return out
 
 
 def _build_into(
-    work: Path,
+    stage: Stage,
     archive: Path,
-    out: Path,
     template: Path,
     site_name: str,
     row_ids: bool,
     say: Progress,
 ) -> None:
-    """Write the mkdocs project into ``work``, build it, and swap it in as ``out``."""
+    """Write the mkdocs project into the work folder and build the site into ``stage.path``."""
     import vl_convert as vlc
     from mkdocs.commands.build import build
     from mkdocs.config import load_config
 
+    work = stage.work
     docs = work / "docs"
     nav: list[Any] = [{"Home": "index.md"}]
     listing = []
@@ -245,20 +222,10 @@ def _build_into(
     except Exception as exc:
         msg = f"mkdocs could not build the site from {archive}: {exc}"
         raise ArchiveError(msg) from exc
-    built = work / "site"
     say("step 3 of 3: writing the built site to disk and moving it into place")
-    (built / SITE_MARKER).write_text(
+    (stage.path / SITE_MARKER).write_text(
         canonical_json({"built": build_date(), "by": "topoaudit site build"}), encoding="utf-8"
     )
-    for root, _dirs, names in os.walk(built):
-        for name in names:
-            fsync_path(Path(root) / name)
-        fsync_path(Path(root), directory=True)
-    if out.exists():
-        exchange_folders(built, out)
-    else:
-        os.rename(built, out)
-    fsync_path(out.parent, directory=True)
 
 
 ROW_LIST = "weak-region-rows.csv"
