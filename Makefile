@@ -26,7 +26,7 @@ $(STAMP): pyproject.toml
 test: $(STAMP)
 	browser="$$($(BIN)/python .ci/browser.py)" && \
 	  $(BIN)/ruff check src tests reference_checks && \
-	  TOPOAUDIT_CHROMIUM="$$browser" $(BIN)/python -m pytest src tests reference_checks
+	  TOPOAUDIT_CHROMIUM="$$browser" $(BIN)/python -m pytest -n auto --dist loadgroup src tests reference_checks
 
 demo: $(STAMP)
 	$(BIN)/topoaudit demo --out build/demo

@@ -33,6 +33,11 @@ def _confirmed(sim, seed: int):
     return merge_confirmed(find_weak_regions(graphs, losses, discovery, random_state=seed))
 
 
+#: under pytest-xdist (make test: --dist loadgroup) the five long simulations run in two
+#: groups of about equal length, one per worker, started before the short tests
+FIRST, SECOND = pytest.mark.xdist_group("planted-1"), pytest.mark.xdist_group("planted-2")
+
+
 def _best_jaccard(found, pocket: np.ndarray) -> float:
     best = 0.0
     for f in found:
@@ -42,6 +47,7 @@ def _best_jaccard(found, pocket: np.ndarray) -> float:
 
 
 @pytest.mark.slow
+@FIRST
 def test_curved_pocket_is_confirmed_with_jaccard_half_in_nine_of_ten_seeds():
     scores = []
     for seed in range(10):
@@ -51,6 +57,7 @@ def test_curved_pocket_is_confirmed_with_jaccard_half_in_nine_of_ten_seeds():
 
 
 @pytest.mark.slow
+@SECOND
 @pytest.mark.parametrize("shape", ["island", "flare"], ids=["island", "flare_tip"])
 def test_island_and_flare_tip_pockets_are_confirmed(shape):
     for seed in range(3):
@@ -60,7 +67,10 @@ def test_island_and_flare_tip_pockets_are_confirmed(shape):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("shape", ["calibrated", "inflated"])
+@pytest.mark.parametrize(
+    "shape",
+    [pytest.param("calibrated", marks=SECOND), pytest.param("inflated", marks=FIRST)],
+)
 def test_no_pocket_confirms_a_region_in_at_most_a_tenth_of_fifty_runs(shape):
     hits = 0
     for seed in range(50):
@@ -70,6 +80,7 @@ def test_no_pocket_confirms_a_region_in_at_most_a_tenth_of_fifty_runs(shape):
 
 
 @pytest.mark.slow
+@SECOND
 def test_regression_pocket_of_large_residuals_is_found():
     rng = np.random.default_rng(5)
     n = 8_000

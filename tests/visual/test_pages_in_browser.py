@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 
+from tests.conftest import fixed_build_date
 from tests.visual.compare import check_image
 from tests.visual.conftest import FIXTURE, RELEASES, serve
 from topoaudit.report.site import build_site, publish
@@ -34,11 +35,9 @@ def _build(tmp: Path) -> Path:
 
 
 @pytest.fixture(scope="module")
-def site(tmp_path_factory, monkeypatch_module=None):
-    import os
-
-    os.environ.setdefault("SOURCE_DATE_EPOCH", "1767225600")
-    return _build(tmp_path_factory.mktemp("browser"))
+def site(tmp_path_factory):
+    with fixed_build_date():  # restored after the build, whichever test runs next
+        return _build(tmp_path_factory.mktemp("browser"))
 
 
 def _visit(browser, root: Path, path: str) -> tuple[bytes, list[str], list[str], list[str]]:
