@@ -36,6 +36,7 @@ check: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
+	$(BIN)/python -m tests.benchmarks.shape
 	$(BIN)/python -m tests.benchmarks.audit
 	$(BIN)/python -m tests.benchmarks.site
 
