@@ -347,7 +347,7 @@ class MapperBuilder:
     >>> from topoaudit.mapper.topology import invariants
     >>> auto = MapperBuilder("coordinate", filter_params={"columns": 1}).fit(circle)
     >>> invariants(auto.graph_).cycle_rank, auto.n_intervals_, auto.overlap_
-    (1, (5,), (0.4,))
+    (1, (7,), (0.4,))
     """
 
     _parameter_constraints = {
