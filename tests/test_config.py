@@ -279,7 +279,7 @@ def test_an_unknown_key_in_a_release_suggests_the_closest() -> None:
         ("data", "categorical", '{ a = "hash" }', 'column = "onehot" or "ordinal"'),
         ("audit", "fdr", "0.0", "a number in the range (0, 1); got 0.0."),
         ("audit", "folds", "1", "an int in the range [2, 50]; got 1."),
-        ("audit", "min_rows", "true", "an int in the range [1, inf); got True."),
+        ("audit", "min_rows", "true", "an int in the range [10, inf); got True."),
     ],
 )
 def test_wrong_values_name_the_key_and_what_is_accepted(

@@ -256,7 +256,7 @@ def _cautions(a: dict[str, Any]) -> list[str]:
     untested = a["summary"]["candidates_untested"]
     if untested:
         out.append(
-            f"{untested} candidate region(s) had fewer than {min_rows} confirmation rows "
+            f"{plural(untested, 'candidate region')} had fewer than {min_rows} confirmation rows "
             "and were not tested; they are neither confirmed nor cleared."
         )
     for r in a["regions"]:
@@ -465,8 +465,8 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
     lines += [f"# {model}, release {release}", ""]
     lines += [
         f"Audit of {count(prov['rows'])} validation rows, {a['created']}. "
-        f"{a['summary']['weak_regions']} weak region(s) confirmed out of "
-        f"{a['summary']['candidates_tested']} candidate(s) tested.",
+        f"{plural(a['summary']['weak_regions'], 'weak region')} confirmed out of "
+        f"{plural(a['summary']['candidates_tested'], 'candidate')} tested.",
         "",
         "## At a glance",
         "",
@@ -610,8 +610,11 @@ def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
         ]
     if n_small:
         lines += [
-            f"{count(n_small)} node(s) hold fewer than {MIN_CELL_ROWS} rows: they are drawn "
-            "grey, without their rates or mean score, so that no row's own values show.",
+            f"{plural(n_small, 'node')} "
+            + ("holds" if n_small == 1 else "hold")
+            + f" fewer than {MIN_CELL_ROWS} rows: "
+            + ("it is" if n_small == 1 else "they are")
+            + " drawn grey, without rates or mean score, so that no row's own values show.",
             "",
         ]
     lines.append(_chart_block("graph", gchart, "Mapper graph of the validation data"))
