@@ -35,10 +35,6 @@ def make_data(n: int = 1500, noise: float = 0.03, extra: int = 5, seed: int = 0)
     return Data(X + rng.normal(0.0, noise, X.shape), arm)
 
 
-def _rows(graph, nodes) -> int:
-    return int(np.unique(np.concatenate([graph.members[v] for v in nodes])).size)
-
-
 def check(graph, data, setting):
     inv = invariants(graph)
     features = shape_features(graph)
@@ -47,8 +43,8 @@ def check(graph, data, setting):
         ok = inv.n_components == 1 and inv.cycle_rank == 0 and flares == 3 and inv.n_leaves == 3
         return ok, describe(inv) + f", {flares} flares, {inv.n_leaves} leaves"
     least = 0.01 * graph.n_rows  # chosen settings: isolated rows are not shape
-    flares = sum(f.kind == "flare" and _rows(graph, f.nodes) >= least for f in features)
-    groups = sum(f.kind == "component" and _rows(graph, f.nodes) >= least for f in features)
+    flares = sum(f.kind == "flare" and graph.rows_of(f.nodes).size >= least for f in features)
+    groups = sum(f.kind == "component" and graph.rows_of(f.nodes).size >= least for f in features)
     ok = groups == 1 and inv.cycle_rank == 0 and flares == 3
     return ok, describe(inv) + f", {flares} flares and {groups} component(s) of 1% of rows or more"
 

@@ -26,10 +26,6 @@ def demo_shape():
     return frame, builder.graph_, summary
 
 
-def _rows(graph, nodes):
-    return np.unique(np.concatenate([graph.members[v] for v in nodes]))
-
-
 def _share(frame, rows, mechanism):
     return float((frame["mechanism"].to_numpy()[rows] == mechanism).mean())
 
@@ -47,8 +43,8 @@ def test_the_large_bore_island_is_a_component_of_its_own(demo_shape):
     islands = [
         f
         for f in summary.of_kind("component")
-        if np.isin(batch, _rows(graph, f.nodes)).all()
-        and _share(frame, _rows(graph, f.nodes), "batch") == 1.0
+        if np.isin(batch, graph.rows_of(f.nodes)).all()
+        and _share(frame, graph.rows_of(f.nodes), "batch") == 1.0
     ]
     assert len(islands) == 1
 
@@ -62,7 +58,7 @@ def test_each_failure_mechanism_is_a_flare(demo_shape, mechanism):
         f
         for f in summary.of_kind("flare")
         if _share(frame, graph.members[f.tip], mechanism) >= 0.9
-        and np.isin(meters, _rows(graph, f.nodes)).mean() >= 0.5
+        and np.isin(meters, graph.rows_of(f.nodes)).mean() >= 0.5
     ]
     assert len(flares) == 1
     assert flares[0].confidence >= 0.9

@@ -8,6 +8,7 @@ from scipy import stats
 
 from topoaudit.audit.shape import _loop_columns, describe_shape, place_on_features
 from topoaudit.mapper.features import ShapeFeature, ShapeSummary
+from topoaudit.mapper.graph import MapperGraph
 
 
 def _members(sizes):
@@ -16,6 +17,11 @@ def _members(sizes):
         out.append(np.arange(start, start + s))
         start += s
     return tuple(out)
+
+
+def _graph(sizes):
+    members = _members(sizes)
+    return MapperGraph.from_members(list(members), sum(sizes))
 
 
 def test_loop_columns_are_ranked_by_eta_squared_as_in_a_one_way_anova():
@@ -47,9 +53,9 @@ def _summary():
 
 
 def test_features_are_named_in_words_and_single_node_groups_left_out():
-    members = _members([40, 40, 40, 20, 15, 15, 1])
+    graph = _graph([40, 40, 40, 20, 15, 15, 1])
     X = np.random.default_rng(1).normal(size=(171, 2))
-    views = describe_shape(_summary(), members, X, ["age", "flow"])
+    views = describe_shape(_summary(), graph, X, ["age", "flow"])
     assert [v.name for v in views] == ["the main component", "separate group 1", "flare 1"]
     assert [v.rows for v in views] == [140, 30, 20]
     assert views[0].main and not views[1].main
@@ -68,10 +74,10 @@ def test_features_are_named_in_words_and_single_node_groups_left_out():
     ids=["the-flare-tip", "a-separate-group", "only-the-main-component"],
 )
 def test_a_weak_region_is_placed_on_the_most_specific_feature_holding_half_of_it(rows, expected):
-    members = _members([40, 40, 40, 20, 15, 15, 1])
+    graph = _graph([40, 40, 40, 20, 15, 15, 1])
     X = np.random.default_rng(1).normal(size=(171, 2))
-    views = describe_shape(_summary(), members, X, ["age", "flow"])
-    got = place_on_features(rows, views, members)
+    views = describe_shape(_summary(), graph, X, ["age", "flow"])
+    got = place_on_features(rows, views, graph)
     if expected is None:
         assert got is None
     else:

@@ -139,7 +139,7 @@ def _shape(
     n = config.graph.resamples
     jobs = 2 if n >= 10 and ds.n_rows >= 2000 and (os.cpu_count() or 1) >= 2 else None
     summary = feature_confidence(builder, X, n_resamples=n, executor=jobs, random_state=config.seed)
-    views = describe_shape(summary, builder.graph_.members, ds.X, list(ds.feature_names))
+    views = describe_shape(summary, builder.graph_, ds.X, list(ds.feature_names))
     record |= {
         "resamples": summary.n_resamples,
         "resample_rows": summary.resample_rows,
@@ -258,7 +258,7 @@ def run_audit(
                 "metrics": _metrics(ds, score, rel.threshold, f.rows, 0, seed),
                 "description": desc.as_dict(),
                 "local_model": local.as_dict(),
-                "on_feature": place_on_features(f.rows, shape_views, graph.members),
+                "on_feature": place_on_features(f.rows, shape_views, graph),
             }
         )
 

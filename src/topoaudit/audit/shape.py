@@ -25,6 +25,7 @@ import numpy as np
 
 from topoaudit.audit.describe import _smd
 from topoaudit.mapper.features import ShapeSummary
+from topoaudit.mapper.graph import MapperGraph
 
 __all__ = ["ShapeFeatureView", "describe_shape", "place_on_features"]
 
@@ -50,12 +51,6 @@ class ShapeFeatureView:
 
     def as_dict(self) -> dict[str, Any]:
         return asdict(self)
-
-
-def _rows_of(members: tuple[np.ndarray, ...], nodes: tuple[int, ...]) -> np.ndarray:
-    if not nodes:
-        return np.zeros(0, dtype=np.int64)
-    return np.unique(np.concatenate([members[v] for v in nodes]))
 
 
 def _contrast_columns(
@@ -97,12 +92,12 @@ def _loop_columns(
 
 def describe_shape(
     summary: ShapeSummary,
-    members: tuple[np.ndarray, ...],
+    graph: MapperGraph,
     X: np.ndarray,
     names: list[str],
 ) -> list[ShapeFeatureView]:
-    """Name and describe each feature of ``summary`` (``members``: the graph's node rows,
-    ``X``: the feature matrix in the user's units).
+    """Name and describe each feature of ``summary``, the features of ``graph`` (``X``:
+    the feature matrix in the user's units).
 
     Features are numbered within their kind by extent, largest first: "loop 1",
     "flare 2"; the component with most rows is "the main component", the others are
@@ -111,7 +106,8 @@ def describe_shape(
     """
     out: list[ShapeFeatureView] = []
     components = [f for f in summary.of_kind("component")]
-    main = max(components, key=lambda f: (_rows_of(members, f.nodes).size, -min(f.nodes)))
+    members = graph.members
+    main = max(components, key=lambda f: (graph.rows_of(f.nodes).size, -min(f.nodes)))
     counters = {"component": 0, "loop": 0, "flare": 0}
     label = {"component": "separate group", "loop": "loop", "flare": "flare"}
     for kind in ("component", "loop", "flare"):
@@ -120,7 +116,7 @@ def describe_shape(
             is_main = f is main
             if kind == "component" and not is_main and len(f.nodes) < 2:
                 continue
-            rows = _rows_of(members, f.nodes)
+            rows = graph.rows_of(f.nodes)
             if kind == "loop":
                 columns = _loop_columns(X, names, members, f.nodes)
             elif kind == "flare" and f.tip is not None and f.root is not None:
@@ -151,7 +147,7 @@ def describe_shape(
 
 
 def place_on_features(
-    rows: np.ndarray, features: list[ShapeFeatureView], members: tuple[np.ndarray, ...]
+    rows: np.ndarray, features: list[ShapeFeatureView], graph: MapperGraph
 ) -> dict[str, Any] | None:
     """The most specific feature (fewest rows) holding at least half of ``rows``, with
     that share, and whether it is the feature's tip (at least half of the tip node's rows
@@ -161,7 +157,7 @@ def place_on_features(
     for f in features:
         if f.main:
             continue
-        share = float(np.isin(rows, _rows_of(members, f.nodes)).mean()) if rows.size else 0.0
+        share = float(np.isin(rows, graph.rows_of(f.nodes)).mean()) if rows.size else 0.0
         if share >= _ON_FEATURE_SHARE and (best is None or f.rows < best[0].rows):
             best = (f, share)
     if best is None:
@@ -169,6 +165,6 @@ def place_on_features(
     f, share = best
     at_tip = False
     if f.tip_node is not None:
-        tip_rows = members[f.tip_node]
+        tip_rows = graph.members[f.tip_node]
         at_tip = bool(np.isin(tip_rows, rows).mean() >= _ON_FEATURE_SHARE)
     return {"feature": f.name, "kind": f.kind, "share": share, "at_tip": at_tip}

@@ -176,28 +176,21 @@ def _flares(values: np.ndarray, adj: list[list[int]], *, upward: bool) -> list[S
     return out
 
 
-def _components(values: np.ndarray, adj: list[list[int]]) -> list[ShapeFeature]:
-    seen = np.zeros(values.size, dtype=bool)
+def _components(graph: MapperGraph, values: np.ndarray) -> list[ShapeFeature]:
+    """One ext0 feature per connected component: from its lowest to its highest value."""
+    from topoaudit.mapper.topology import component_labels
+
+    count, labels = component_labels(graph)
     out = []
-    for start in range(values.size):
-        if seen[start]:
-            continue
-        seen[start] = True
-        queue, nodes = deque([start]), [start]
-        while queue:
-            for u in adj[queue.popleft()]:
-                if not seen[u]:
-                    seen[u] = True
-                    queue.append(u)
-                    nodes.append(u)
-        vals = values[nodes]
+    for c in range(count):
+        nodes = np.flatnonzero(labels == c)
         out.append(
             ShapeFeature(
                 kind="component",
                 part="ext0",
-                birth=float(vals.min()),
-                death=float(vals.max()),
-                nodes=tuple(sorted(nodes)),
+                birth=float(values[nodes].min()),
+                death=float(values[nodes].max()),
+                nodes=tuple(int(v) for v in nodes),
             )
         )
     return out
@@ -349,7 +342,7 @@ def persistence_diagram(graph: MapperGraph, values: Any = None) -> dict[str, np.
     """
     f = _node_values(graph, values)
     adj = _adjacency(graph.n_nodes, graph.edges)
-    parts = _components(f, adj) + _loops(f, np.asarray(graph.edges, dtype=np.int64), adj)
+    parts = _components(graph, f) + _loops(f, np.asarray(graph.edges, dtype=np.int64), adj)
     parts += _flares(f, adj, upward=False) + _flares(f, adj, upward=True)
     out = {p: np.zeros((0, 2)) for p in _DIAGRAM_PARTS}
     for p in _DIAGRAM_PARTS:
@@ -387,7 +380,7 @@ def shape_features(graph: MapperGraph, values: Any = None) -> list[ShapeFeature]
     f = _node_values(graph, values)
     adj = _adjacency(graph.n_nodes, graph.edges)
     loops = _loops(f, np.asarray(graph.edges, dtype=np.int64), adj)
-    return _components(f, adj) + loops + _leaf_flares(f, adj)
+    return _components(graph, f) + loops + _leaf_flares(f, adj)
 
 
 def _perfect_matching(a: np.ndarray, b: np.ndarray, t: float) -> bool:

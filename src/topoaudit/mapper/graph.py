@@ -181,6 +181,13 @@ class MapperGraph:
         np.cumsum(np.bincount(rows, minlength=self.n_rows), out=indptr[1:])
         return indptr, nodes[order]
 
+    def rows_of(self, nodes: Any) -> np.ndarray:
+        """The sorted positions of the rows held by any of ``nodes``."""
+        nodes = list(nodes)
+        if not nodes:
+            return np.zeros(0, dtype=np.int64)
+        return np.unique(np.concatenate([self.members[v] for v in nodes]))
+
     def covered_rows(self) -> np.ndarray:
         """Boolean mask of rows that lie in at least one node."""
         mask = np.zeros(self.n_rows, dtype=bool)
