@@ -196,7 +196,7 @@ def test_a_one_row_node_shows_its_size_but_not_its_score():
     assert "0.876543" not in text and "0.87654" not in page.markdown
     small = next(n for n in _graph_spec_nodes(page) if n["node"] == 1)
     assert small["rows"] == 1 and small["mean_score"] is None and small["loss"] is None
-    assert "1 node(s) hold fewer than 10 rows" in page.markdown
+    assert "1 node holds fewer than 10 rows" in page.markdown
     assert any("grey" in s for s in page.charts["graph"]["title"]["subtitle"])
 
 
