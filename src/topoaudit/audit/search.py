@@ -17,7 +17,9 @@ The lens is made in three steps, all from discovery labels only:
 
 1. a gradient-boosting model of the excess (scikit-learn's
    ``HistGradientBoostingRegressor``, k-fold on a seeded sample of at most 20,000 rows of
-   the discovery half) and the permutation
+   the discovery half; at most 150 rounds, stopped early when the loss on a tenth of the
+   training fold has not improved for 10 rounds, so a fold with no signal costs a few
+   rounds instead of 150) and the permutation
    importance of each feature on the held-out folds (Breiman, 2001). A feature is kept
    when its mean importance exceeds three standard errors and a quarter of the largest;
    kept features get weight 1, the others 0 (all features, if none is kept);
@@ -147,6 +149,9 @@ def relevance_weights(
             learning_rate=0.05,
             max_leaf_nodes=15,
             min_samples_leaf=max(20, d.size // 200),
+            early_stopping=True,
+            validation_fraction=0.1,
+            n_iter_no_change=10,
             random_state=random_state,
         ).fit(X[d[train]], excess[train])
         draws.append(

@@ -234,14 +234,7 @@ def _grow(
     frontier = set(neighbours[seed].tolist())
     stale = 0
     while frontier and stale < patience and len(chosen) < max_nodes:
-        step = None
-        for v in sorted(frontier):
-            new = node_rows[v][~in_set[node_rows[v]]]
-            if n + new.size > max_rows:
-                continue
-            score = scan_statistic(o + obs[new].sum(), e + exp[new].sum(), total)
-            if step is None or score > step[0]:
-                step = (score, v, new)
+        step = _best_step(sorted(frontier), node_rows, in_set, obs, exp, (o, e, n), total, max_rows)
         if step is None:
             break
         score, v, new = step
@@ -255,6 +248,35 @@ def _grow(
         else:
             stale += 1
     return best
+
+
+def _best_step(
+    candidates: list[int],
+    node_rows: list[np.ndarray],
+    in_set: np.ndarray,
+    obs: np.ndarray,
+    exp: np.ndarray,
+    current: tuple[float, float, int],
+    total: float,
+    max_rows: int,
+) -> tuple[float, int, np.ndarray] | None:
+    """The candidate node whose new rows give the highest LLR (the first in ``candidates``
+    among equals), as ``(LLR, node, new rows)``; ``None`` when every one would pass
+    ``max_rows``. All candidates are scored in one call of :func:`_llr`."""
+    o, e, n = current
+    news = [node_rows[v][~in_set[node_rows[v]]] for v in candidates]
+    sizes = np.array([a.size for a in news], dtype=np.int64)
+    fits = n + sizes <= max_rows
+    if not fits.any():
+        return None
+    where = np.repeat(np.arange(len(news)), sizes)
+    idx = np.concatenate(news) if news else np.empty(0, dtype=np.int64)
+    add_o = np.bincount(where, weights=obs[idx], minlength=len(news))
+    add_e = np.bincount(where, weights=exp[idx], minlength=len(news))
+    scores = _llr(o + add_o, e + add_e, total) if total > 0 else np.zeros(len(news))
+    scores = np.where(fits, scores, -np.inf)
+    k = int(np.argmax(scores))
+    return float(scores[k]), candidates[k], news[k]
 
 
 def _grown(
