@@ -249,10 +249,13 @@ def noisy_circle(seed: int, n: int = 1000, noise: float = 0.03) -> np.ndarray:
 def test_confidence_is_the_same_serially_and_in_two_processes():
     X = noisy_circle(0, n=400)
     builder = MapperBuilder().fit(X)
-    serial = feature_confidence(builder, X, n_resamples=8, random_state=3)
+    said: list[str] = []
+    serial = feature_confidence(builder, X, n_resamples=8, random_state=3, progress=said.append)
     parallel = feature_confidence(
         builder, X, n_resamples=8, random_state=3, executor=ProcessExecutor(2)
     )
+    # reported in batches of a tenth (rounded up), which do not change the results
+    assert said == [f"resample {i} of 8" for i in range(1, 9)]
     assert [f.confidence for f in serial.features] == [f.confidence for f in parallel.features]
     assert serial.distances == parallel.distances
     assert serial.resample_rows == parallel.resample_rows == 200

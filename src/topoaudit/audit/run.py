@@ -45,6 +45,7 @@ from topoaudit.data import Dataset, load_dataset
 from topoaudit.mapper.features import feature_confidence
 from topoaudit.mapper.graph import MapperBuilder
 from topoaudit.mapper.topology import invariants
+from topoaudit.wording import plural
 
 __all__ = ["Audit", "run_audit"]
 
@@ -124,7 +125,7 @@ def _settings_grid(
 
 
 def _shape(
-    config: Config, ds: Dataset, X: np.ndarray, builder: MapperBuilder
+    config: Config, ds: Dataset, X: np.ndarray, builder: MapperBuilder, say: Progress
 ) -> tuple[list[ShapeFeatureView], dict[str, Any]]:
     """The features of the shown graph, described, and the record of how sure they are.
     Only a graph of a one-dimensional filter has them (a product cover draws loops of its
@@ -138,7 +139,14 @@ def _shape(
         return [], {**record, "resamples": 0, "resample_rows": 0, "features": [], "two_d": True}
     n = config.graph.resamples
     jobs = 2 if n >= 10 and ds.n_rows >= 2000 and (os.cpu_count() or 1) >= 2 else None
-    summary = feature_confidence(builder, X, n_resamples=n, executor=jobs, random_state=config.seed)
+    summary = feature_confidence(
+        builder,
+        X,
+        n_resamples=n,
+        executor=jobs,
+        random_state=config.seed,
+        progress=lambda message: say(f"step 2 of 8: features of the shape, {message}"),
+    )
     views = describe_shape(summary, builder.graph_, ds.X, list(ds.feature_names))
     record |= {
         "resamples": summary.n_resamples,
@@ -203,12 +211,13 @@ def run_audit(
     score = ds.scores[rel.name]
     X = StandardScaler().fit_transform(ds.X) if config.graph.standardize else ds.X
 
-    say(f"step 1 of 8: building the graph of {ds.n_rows} rows x {ds.X.shape[1]} features")
+    size = f"{plural(ds.n_rows, 'row')} x {plural(ds.X.shape[1], 'feature')}"
+    say(f"step 1 of 8: building the graph of {size}")
     builder = _display_builder(config, X, score)
     graph = builder.graph_
     partition = partition_graph(graph, random_state=seed)
     say(f"step 2 of 8: scoring the features of the shape on {config.graph.resamples} resamples")
-    shape_views, shape = _shape(config, ds, X, builder)
+    shape_views, shape = _shape(config, ds, X, builder, say)
 
     say("step 3 of 8: computing metrics")
     every = np.arange(ds.n_rows)
@@ -227,8 +236,8 @@ def run_audit(
     )
     weak = merge_confirmed(findings)
     say(
-        f"step 4 of 8: {sum(f.tested for f in findings)} candidates tested, "
-        f"{len(weak)} weak regions confirmed"
+        f"step 4 of 8: {plural(sum(f.tested for f in findings), 'candidate')} tested, "
+        f"{plural(len(weak), 'weak region')} confirmed"
     )
 
     weak_out = []

@@ -49,6 +49,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections import deque
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -495,6 +496,7 @@ def feature_confidence(
     n_resamples: int = 100,
     executor: Any = None,
     random_state: int | None = 0,
+    progress: Callable[[str], None] | None = None,
 ) -> ShapeSummary:
     """The features of ``builder.graph_`` with their bootstrap confidence.
 
@@ -509,6 +511,8 @@ def feature_confidence(
     executor : executor or None, default=None
         Where the resamples run (see :mod:`topoaudit.mapper.executor`); serial if None.
     random_state : int or None, default=0
+    progress : callable or None
+        Called with ``"resample I of N"`` after each tenth of the resamples.
 
     Returns
     -------
@@ -541,10 +545,18 @@ def feature_confidence(
     tasks = [(int(s), size, X.shape[1], settings, reference) for s in seeds]
     run = make_executor(executor)
     start = time.perf_counter()
-    if hasattr(run, "map_shared"):
-        distances = run.map_shared(_resample_distance, shared, tasks)
-    else:
-        distances = run.map(_resample_distance, [(shared, *t) for t in tasks])
+    distances: list[Any] = []
+    # in batches, so that a long run can say how far it is; the results do not depend on
+    # the batches (each resample has its own seed)
+    batch = max(1, -(-n_resamples // 10))
+    for first in range(0, n_resamples, batch):
+        part = tasks[first : first + batch]
+        if hasattr(run, "map_shared"):
+            distances += run.map_shared(_resample_distance, shared, part)
+        else:
+            distances += run.map(_resample_distance, [(shared, *t) for t in part])
+        if progress is not None:
+            progress(f"resample {len(distances)} of {n_resamples}")
     seconds = (time.perf_counter() - start) / n_resamples
     per_part = np.asarray(distances, dtype=np.float64).reshape(n_resamples, len(_DIAGRAM_PARTS))
     column = {"component": 0, "loop": 1}

@@ -20,9 +20,10 @@ from __future__ import annotations
 
 import html
 import json
-import math
 import re
 from typing import Any
+
+from topoaudit.wording import count, is_missing, plural
 
 __all__ = [
     "code_fence",
@@ -99,35 +100,15 @@ def code_fence(text: str) -> str:
     return f"{fence}\n{line}\n{fence}"
 
 
-def _missing(value: Any) -> bool:
-    return value is None or (isinstance(value, float) and not math.isfinite(value))
-
-
 def rate(value: Any, digits: int = 3) -> str:
     """A proportion or loss with ``digits`` decimals; "n/a" when undefined."""
-    return "n/a" if _missing(value) else f"{float(value):.{digits}f}"
+    return "n/a" if is_missing(value) else f"{float(value):.{digits}f}"
 
 
 def signed(value: Any, digits: int = 3) -> str:
-    return "n/a" if _missing(value) else f"{float(value):+.{digits}f}"
-
-
-def count(value: Any) -> str:
-    return "n/a" if _missing(value) else f"{round(float(value)):,}"
+    return "n/a" if is_missing(value) else f"{float(value):+.{digits}f}"
 
 
 def pvalue(value: Any) -> str:
     """p-values in scientific notation with 2 significant digits."""
-    return "n/a" if _missing(value) else f"{float(value):.1e}"
-
-
-def plural(n: Any, word: str, words: str | None = None) -> str:
-    """``"1 loop"``, ``"2 loops"``, ``"1,200 rows"``: the count and the word that fits it.
-
-    Examples
-    --------
-    >>> plural(1, "branch point"), plural(3, "branch point"), plural(2, "leaf", "leaves")
-    ('1 branch point', '3 branch points', '2 leaves')
-    """
-    many = words if words is not None else word + "s"
-    return f"{count(n)} {word if n == 1 else many}"
+    return "n/a" if is_missing(value) else f"{float(value):.1e}"
