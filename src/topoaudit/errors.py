@@ -13,6 +13,8 @@ import difflib
 from collections.abc import Iterable
 
 __all__ = [
+    "ArchiveError",
+    "BundleError",
     "ConfigError",
     "DataError",
     "FilterError",
@@ -56,6 +58,15 @@ class LimitError(TopoauditError, ValueError):
 
 class LimitParameterError(LimitError, ParameterError):
     """A parameter asks for more than a documented limit allows (both kinds of error)."""
+
+
+class ArchiveError(TopoauditError, OSError):
+    """The archive refused an operation (a name, an existing release, a broken bundle)."""
+
+
+class BundleError(TopoauditError, ValueError):
+    """A bundle file does not hold the record its schema describes (the message names the
+    file and the key)."""
 
 
 def closest_names(name: str, choices: Iterable[str], n: int = 3) -> list[str]:

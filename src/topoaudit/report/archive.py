@@ -47,7 +47,7 @@ from typing import Any
 
 from topoaudit.audit.result import build_date, canonical_json
 from topoaudit.config import NAME_PATTERN
-from topoaudit.errors import TopoauditError
+from topoaudit.errors import ArchiveError
 
 try:  # pragma: no cover - every supported platform has fcntl
     import fcntl
@@ -77,10 +77,6 @@ HISTORY = ".history"
 INCOMING = ".incoming-"
 LOCK = ".lock"  # the flock(2) file of the archive and of every work folder
 _INTENT = "intent.json"
-
-
-class ArchiveError(TopoauditError, OSError):
-    """The archive refused an operation (a name, an existing release, a broken bundle)."""
 
 
 def check_name(kind: str, name: object) -> str:

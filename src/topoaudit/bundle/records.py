@@ -1,0 +1,580 @@
+"""The typed records of a bundle: what one audit produces, as it is stored and read.
+
+Every file of a bundle that holds aggregates is one record here:
+
+* ``analysis.json`` is an :class:`Analysis` (global metrics, regions, weak regions with
+  their local-model tests, candidates, stability, the release comparison, provenance);
+* ``graph.json`` is a :class:`GraphDocument` (nodes with their statistics, links).
+
+Producers build records and write them; consumers read records, never raw JSON, so a
+renamed or missing key fails when a bundle is read, with the file and the key path in
+the message (:class:`~topoaudit.errors.BundleError`), not when a page is rendered.
+
+A field's name is its JSON key. A number that is undefined (NaN) or withheld (a small
+cell of the public view, see :mod:`topoaudit.bundle.view`) is stored as ``null`` and
+read as ``None``; sizes, names and places are never ``None``. A field marked
+``omit_when_none`` is left out of the JSON when it is ``None`` (``calibration`` of a
+regression region, ``positive_rate`` of a regression node), as the schema has always
+done.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import types
+import typing
+from dataclasses import dataclass, field
+from typing import Any, TypeVar
+
+from topoaudit.errors import BundleError
+
+__all__ = [
+    "SCHEMA",
+    "Analysis",
+    "CalibrationBin",
+    "Candidate",
+    "CategoryContrast",
+    "Comparison",
+    "Description",
+    "Estimate",
+    "FeatureContrast",
+    "GraphDocument",
+    "GraphSummary",
+    "GridPoint",
+    "HalfEstimate",
+    "Invariants",
+    "Link",
+    "LocalModelTest",
+    "Metrics",
+    "Node",
+    "OnFeature",
+    "Provenance",
+    "RegionChange",
+    "RegionRecord",
+    "SearchGraphRecord",
+    "ShapeColumn",
+    "ShapeFeatureRecord",
+    "ShapeRecord",
+    "Stability",
+    "StabilityRun",
+    "Summary",
+    "SurrogateRule",
+    "WeakRegion",
+    "from_dict",
+    "to_dict",
+]
+
+#: the version of the layout of analysis.json and graph.json that this code writes and reads
+SCHEMA = 1
+
+#: a statistic: ``None`` when undefined or withheld
+Stat = float | None
+
+R = TypeVar("R")
+
+
+def omit_when_none(default: Any = None) -> Any:
+    """A field left out of the JSON when it is ``None``."""
+    return field(default=default, metadata={"omit_when_none": True})
+
+
+# -- encoding and decoding ----------------------------------------------------------------
+
+
+def to_dict(record: Any) -> Any:
+    """The JSON-ready form of a record (nested records, tuples and dicts converted)."""
+    if dataclasses.is_dataclass(record) and not isinstance(record, type):
+        out = {}
+        for f in dataclasses.fields(record):
+            value = getattr(record, f.name)
+            if value is None and f.metadata.get("omit_when_none"):
+                continue
+            out[f.name] = to_dict(value)
+        return out
+    if isinstance(record, list | tuple):
+        return [to_dict(v) for v in record]
+    if isinstance(record, dict):
+        return {k: to_dict(v) for k, v in record.items()}
+    return record
+
+
+def from_dict(cls: type[R], data: Any, where: str) -> R:
+    """Read ``data`` (parsed JSON) as a record of type ``cls``.
+
+    ``where`` names the file (``"analysis.json:"``) or the key path under it
+    (``"analysis.json: weak_regions[0]"``) for the message of the
+    :class:`~topoaudit.errors.BundleError` raised when a key is missing or unknown or a
+    value is of the wrong kind.
+    """
+    at = where.rstrip(":")
+    if not isinstance(data, dict):
+        raise BundleError(f"{at}: expected a table of {_name(cls)}, found {_kind(data)}.")
+    hints = typing.get_type_hints(cls)
+    fields = {f.name: f for f in dataclasses.fields(cls)}  # type: ignore[arg-type]
+    unknown = sorted(set(data) - set(fields))
+    if unknown:
+        msg = (
+            f"{at}: unknown key {unknown[0]!r}; a {_name(cls)} of schema {SCHEMA} has "
+            f"{', '.join(sorted(fields))}."
+        )
+        raise BundleError(msg)
+    values = {}
+    for name, f in fields.items():
+        if name in data:
+            values[name] = _decode(hints[name], data[name], _child(where, name))
+        elif f.metadata.get("omit_when_none"):
+            values[name] = None
+        else:
+            msg = f"{at}: missing key {name!r}; a {_name(cls)} of schema {SCHEMA} has it."
+            raise BundleError(msg)
+    return cls(**values)
+
+
+def _child(where: str, key: str) -> str:
+    """The path of ``key`` under ``where`` (``"analysis.json:"`` is a file's top level)."""
+    return f"{where} {key}" if where.endswith(":") else f"{where}.{key}"
+
+
+def _name(cls: Any) -> str:
+    return getattr(cls, "__name__", str(cls))
+
+
+def _kind(value: Any) -> str:
+    if value is None:
+        return "null"
+    return {dict: "a table", list: "a list", str: "text", bool: "true/false"}.get(
+        type(value), f"the number {value!r}" if isinstance(value, int | float) else "a value"
+    )
+
+
+def _decode(tp: Any, value: Any, where: str) -> Any:
+    origin = typing.get_origin(tp)
+    args = typing.get_args(tp)
+    if tp is Any:
+        return value
+    if origin in (typing.Union, types.UnionType):
+        if value is None and type(None) in args:
+            return None
+        members = [a for a in args if a is not type(None)]
+        if len(members) == 1:
+            return _decode(members[0], value, where)
+        for m in members:
+            try:
+                return _decode(m, value, where)
+            except BundleError:
+                continue
+        raise BundleError(f"{where}: {_kind(value)} is none of {', '.join(map(_name, members))}.")
+    if dataclasses.is_dataclass(tp):
+        return from_dict(tp, value, where)
+    if origin is tuple:
+        if not isinstance(value, list):
+            raise BundleError(f"{where}: expected a list, found {_kind(value)}.")
+        return tuple(_decode(args[0], v, f"{where}[{i}]") for i, v in enumerate(value))
+    if origin is dict:
+        if not isinstance(value, dict):
+            raise BundleError(f"{where}: expected a table, found {_kind(value)}.")
+        return {k: _decode(args[1], v, _child(where, k)) for k, v in value.items()}
+    if tp is float:
+        if value is None or (isinstance(value, int | float) and not isinstance(value, bool)):
+            return value
+        raise BundleError(f"{where}: expected a number or null, found {_kind(value)}.")
+    if tp is int:
+        if isinstance(value, int) and not isinstance(value, bool):
+            return value
+        raise BundleError(f"{where}: expected a whole number, found {_kind(value)}.")
+    if tp in (str, bool):
+        if isinstance(value, tp):
+            return value
+        expected = "text" if tp is str else "true or false"
+        raise BundleError(f"{where}: expected {expected}, found {_kind(value)}.")
+    raise TypeError(f"no decoder for {tp!r}")  # a record declared with a type not handled
+
+
+class _Record:
+    """Methods common to every record."""
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_dict(self)
+
+    @classmethod
+    def from_dict(cls, data: Any, where: str = "") -> Any:
+        return from_dict(cls, data, where or f"{cls.__name__}:")
+
+
+record = dataclass(frozen=True, kw_only=True)
+
+# -- metrics -------------------------------------------------------------------------------
+
+
+@record
+class Estimate(_Record):
+    """A metric with its 95% bootstrap interval (``low``/``high`` None when not computed)."""
+
+    value: Stat
+    low: Stat = None
+    high: Stat = None
+
+
+#: metric name -> estimate (the names of :mod:`topoaudit.audit.tasks`)
+Metrics = dict[str, Estimate]
+
+
+@record
+class CalibrationBin(_Record):
+    """One bin of a reliability diagram."""
+
+    low: float
+    high: float
+    rows: int
+    mean_score: Stat
+    observed_rate: Stat
+
+
+# -- regions, candidates and weak regions ---------------------------------------------------
+
+
+@record
+class RegionRecord(_Record):
+    """One region of the graph's partition with its metrics."""
+
+    id: int
+    rows: int
+    nodes: int
+    metrics: Metrics
+    calibration: tuple[CalibrationBin, ...] | None = omit_when_none()
+
+
+@record
+class HalfEstimate(_Record):
+    """A region on one half of the rows: its size, observed and expected loss and rates."""
+
+    rows: int
+    observed: Stat
+    expected: Stat
+    observed_rate: Stat
+    expected_rate: Stat
+    ratio: Stat
+
+    @classmethod
+    def of(cls, rows: int, observed: float, expected: float) -> HalfEstimate:
+        nan = float("nan")
+        return cls(
+            rows=rows,
+            observed=observed,
+            expected=expected,
+            observed_rate=observed / rows if rows else nan,
+            expected_rate=expected / rows if rows else nan,
+            ratio=observed / expected if expected > 0 else nan,
+        )
+
+
+@record
+class Candidate(_Record):
+    """A candidate weak region as stored: where it was found and its two halves."""
+
+    graph: str
+    kind: str
+    nodes: tuple[int, ...]
+    rows: int
+    scan_llr: Stat
+    lens_threshold: Stat
+    discovery: HalfEstimate
+    confirmation: HalfEstimate
+    tested: bool
+    p_value: Stat
+    p_adjusted: Stat
+    confirmed: bool
+    effect: Stat
+    note: str
+    also_found: tuple[str, ...]
+
+
+@record
+class FeatureContrast(_Record):
+    feature: str
+    region_mean: Stat
+    rest_mean: Stat
+    smd: Stat
+
+
+@record
+class CategoryContrast(_Record):
+    feature: str
+    category: str
+    region_share: Stat
+    rest_share: Stat
+
+
+@record
+class SurrogateRule(_Record):
+    text: str
+    precision: Stat
+    recall: Stat
+    depth: int
+
+
+@record
+class Description(_Record):
+    """Who is in a region, in feature terms."""
+
+    contrasts: tuple[FeatureContrast, ...]
+    categories: tuple[CategoryContrast, ...]
+    rule: SurrogateRule
+
+
+@record
+class LocalModelTest(_Record):
+    """Whether a model fitted on a region alone does better there than the release."""
+
+    rows: int
+    folds: int
+    model: str
+    release_loss: Stat
+    local_loss: Stat
+    difference: Stat
+    low: Stat
+    high: Stat
+    verdict: str
+
+
+@record
+class OnFeature(_Record):
+    """The feature of the shape a weak region lies on."""
+
+    feature: str
+    kind: str
+    share: Stat
+    at_tip: bool
+
+
+@record
+class WeakRegion(Candidate):
+    """A confirmed weak region: a candidate with its name, metrics, description, local
+    model test, place on the shape and stability."""
+
+    id: str
+    share_of_rows: Stat
+    error_interval_points: Stat
+    metrics: Metrics
+    description: Description | None
+    local_model: LocalModelTest
+    on_feature: OnFeature | None
+    stability: Stat
+
+
+# -- the graph -------------------------------------------------------------------------------
+
+
+@record
+class Invariants(_Record):
+    """The shape of a graph in numbers."""
+
+    n_nodes: int
+    n_edges: int
+    n_components: int
+    cycle_rank: int
+    n_leaves: int
+    n_branch_points: int
+    n_isolated: int
+
+
+@record
+class GridPoint(Invariants):
+    """The shown graph's invariants at one other cover setting."""
+
+    n_intervals: int
+    overlap: float
+
+
+@record
+class ShapeColumn(_Record):
+    """A column that sets a feature apart: by its standardised mean difference and
+    direction (a component or a flare), or by the share of its variance that lies
+    between the nodes of a loop (``eta_squared``)."""
+
+    column: str
+    smd: Stat = omit_when_none()
+    direction: str | None = omit_when_none()
+    eta_squared: Stat = omit_when_none()
+
+
+@record
+class ShapeFeatureRecord(_Record):
+    """One feature of the shape (component, loop or flare) as stored."""
+
+    name: str
+    kind: str
+    confidence: Stat
+    extent: Stat
+    filter_low: Stat
+    filter_high: Stat
+    nodes: tuple[int, ...]
+    rows: int
+    tip_node: int | None
+    columns: tuple[ShapeColumn, ...]
+    main: bool = False
+
+
+@record
+class ShapeRecord(_Record):
+    """The settings the shown graph was built at and the features of its shape."""
+
+    chosen: dict[str, Any] | None
+    n_intervals: tuple[int, ...]
+    overlap: tuple[float, ...]
+    resamples: int
+    resample_rows: int
+    features: tuple[ShapeFeatureRecord, ...]
+    two_d: bool | None = omit_when_none()
+
+
+@record
+class GraphSummary(_Record):
+    settings: dict[str, Any]
+    invariants: Invariants
+    regions: int
+    grid: tuple[GridPoint, ...]
+    shape: ShapeRecord
+
+
+@record
+class SearchGraphRecord(_Record):
+    """One of the graphs searched for weak regions."""
+
+    name: str
+    method: str
+    nodes: int
+    edges: int
+    settings: dict[str, Any]
+    features_used: tuple[str, ...]
+
+
+@record
+class Node(_Record):
+    """One node of graph.json: its size, place and statistics."""
+
+    id: int
+    rows: int
+    region: int
+    filter: Stat
+    mean_score: Stat
+    loss: Stat
+    expected_loss: Stat
+    weak_regions: tuple[str, ...]
+    positive_rate: Stat = omit_when_none()
+
+
+@record
+class Link(_Record):
+    source: int
+    target: int
+    shared: int
+    jaccard: Stat
+
+
+@record
+class GraphDocument(_Record):
+    """graph.json: the shown graph's nodes and links, no row-level data."""
+
+    n_rows: int
+    settings: dict[str, Any]
+    nodes: tuple[Node, ...]
+    links: tuple[Link, ...]
+
+
+# -- stability and comparison ------------------------------------------------------------
+
+
+@record
+class StabilityRun(_Record):
+    label: str
+    kind: str
+    confirmed: int
+    found: dict[str, bool]
+
+
+@record
+class Stability(_Record):
+    runs: tuple[StabilityRun, ...]
+
+
+@record
+class RegionChange(_Record):
+    """A region's loss before and after a release, with McNemar's or a paired test."""
+
+    region: int
+    rows: int
+    before: Stat
+    after: Stat
+    change: Stat
+    low: Stat
+    high: Stat
+    worse_only_after: int | None
+    worse_only_before: int | None
+    p_value: Stat
+    p_adjusted: Stat
+    verdict: str
+
+
+@record
+class Comparison(_Record):
+    baseline: str
+    candidate: str
+    overall: RegionChange
+    regions: tuple[RegionChange, ...]
+    worse: tuple[int, ...]
+    better: tuple[int, ...]
+    baseline_overall: Metrics
+
+
+# -- the whole analysis ----------------------------------------------------------------------
+
+
+@record
+class Provenance(_Record):
+    fingerprint: str
+    data_file: str
+    rows: int
+    rows_dropped: int
+    features: tuple[str, ...]
+    encoding: dict[str, Any]
+    seed: int
+    versions: dict[str, str]
+    command: str
+    threshold: float | None
+    score_column: str
+    discovery_rows: int
+    confirmation_rows: int
+
+
+@record
+class Summary(_Record):
+    candidates: int
+    candidates_tested: int
+    candidates_untested: int
+    weak_regions: int
+    regions: int
+    confidence: float
+
+
+@record
+class Analysis(_Record):
+    """analysis.json: everything one audit of one release found."""
+
+    model: str
+    release: str
+    task: str
+    created: str
+    config: dict[str, Any]
+    provenance: Provenance
+    overall: Metrics
+    graph: GraphSummary
+    search: tuple[SearchGraphRecord, ...]
+    regions: tuple[RegionRecord, ...]
+    weak_regions: tuple[WeakRegion, ...]
+    candidates: tuple[Candidate, ...]
+    stability: Stability
+    comparison: Comparison | None = None
+    summary: Summary
+    schema: int = SCHEMA
+    extra: dict[str, Any] = field(default_factory=dict)
