@@ -10,6 +10,7 @@ from pathlib import Path
 
 from topoaudit.errors import TopoauditError
 from topoaudit.progress import PROGRESS_MODES, ProgressLine
+from topoaudit.wording import plural
 
 __all__ = ["main"]
 
@@ -49,14 +50,15 @@ def _write_bundle(audit, out: Path) -> None:
         write_checksums(stage.path)
 
 
-def _summary(result) -> str:
-    o = result.overall
-    key = "error_rate" if result.task == "binary" else "mae"
-    n = len(result.weak_regions)
+def _summary(a) -> str:
+    """One line on an Analysis: rows, headline metric, weak regions confirmed."""
+    from topoaudit.audit.tasks import task_named
+
+    key, label = task_named(a.task).headline
     return (
-        f"{result.model} {result.release}: {result.provenance['rows']:,} rows, "
-        f"{key.replace('_', ' ')} {o[key]['value']:.3f}, "
-        f"{n} weak region{'s' if n != 1 else ''} confirmed"
+        f"{a.model} {a.release}: {plural(a.provenance.rows, 'row')}, "
+        f"{label} {a.overall[key].value:.3f}, "
+        f"{plural(len(a.weak_regions), 'weak region')} confirmed"
     )
 
 
@@ -79,7 +81,7 @@ def _audit(args: argparse.Namespace) -> int:
         audit = run_audit(config, release=args.release, progress=say, command=command)
         say("writing the bundle, its page and its charts")
         _write_bundle(audit, out)
-    print(f"{_summary(audit.result)}; bundle written to {out}")
+    print(f"{_summary(audit.analysis)}; bundle written to {out}")
     return 0
 
 
@@ -128,10 +130,10 @@ def _archive_verify(args: argparse.Namespace) -> int:
 
 
 def _diff(args: argparse.Namespace) -> int:
-    from topoaudit.audit.diff import bundle_diff
+    from topoaudit.audit.changes import release_changes
     from topoaudit.report.diff import diff_markdown
 
-    sys.stdout.write(diff_markdown(bundle_diff(args.before, args.after)))
+    sys.stdout.write(diff_markdown(release_changes(args.before, args.after)))
     return 0
 
 
@@ -163,12 +165,12 @@ def _demo(args: argparse.Namespace) -> int:
                 shutil.rmtree(bundle)
             _write_bundle(audit, bundle)
             publish(bundle, archive, replace=True)
-            inv = audit.result.graph["invariants"]
+            inv = audit.analysis.graph.invariants
             summaries.append(
-                f"{_summary(audit.result)}; graph of {inv['n_nodes']} nodes, "
-                f"{inv['n_edges']} edges, {inv['n_components']} components, cycle rank "
-                f"{inv['cycle_rank']}, {inv['n_leaves']} leaves, "
-                f"{inv['n_branch_points']} branch points"
+                f"{_summary(audit.analysis)}; graph of {plural(inv.n_nodes, 'node')}, "
+                f"{plural(inv.n_edges, 'edge')}, {plural(inv.n_components, 'component')}, "
+                f"cycle rank {inv.cycle_rank}, {plural(inv.n_leaves, 'leaf', 'leaves')}, "
+                f"{plural(inv.n_branch_points, 'branch point')}"
             )
         site = build_site(
             archive,

@@ -24,7 +24,6 @@ from topoaudit.audit.metrics import (
     binary_metrics,
     expected_calibration_error,
     log_loss,
-    metrics_as_dict,
     regression_metrics,
 )
 from topoaudit.audit.stats import wilson_interval
@@ -217,13 +216,12 @@ def test_bootstrap_intervals_are_seeded_and_bracket_the_value() -> None:
     assert first["error_rate"] == binary_metrics(y, p)["error_rate"]
 
 
-def test_metrics_as_dict_is_plain() -> None:
+def test_metrics_are_estimate_records_with_plain_forms() -> None:
     m = binary_metrics(np.array([0, 1, 1, 0, 1]), np.array([0.2, 0.8, 0.4, 0.1, 0.9]))
-    out = metrics_as_dict(m)
-    assert out["rows"]["value"] == 5.0
-    assert math.isnan(out["rows"]["low"]) and math.isnan(out["rows"]["high"])
+    out = {k: v.to_dict() for k, v in m.items()}
+    assert out["rows"] == {"value": 5.0, "low": None, "high": None}  # no interval computed
     assert set(out["error_rate"]) == {"value", "low", "high"}
-    assert Estimate(0.5, 0.1, 0.9).as_dict() == {"value": 0.5, "low": 0.1, "high": 0.9}
+    assert Estimate(0.5, 0.1, 0.9).to_dict() == {"value": 0.5, "low": 0.1, "high": 0.9}
 
 
 # ---------------------------------------------------------------- regression_metrics

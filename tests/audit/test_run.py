@@ -10,6 +10,7 @@ import pytest
 
 from reference_checks.planted_pockets import simulate
 from topoaudit.audit.run import run_audit
+from topoaudit.bundle.files import canonical_json
 from topoaudit.cli import main
 from topoaudit.config import load_config
 
@@ -61,37 +62,37 @@ def audit(project):
 
 
 def test_the_region_table_covers_every_row_once(audit, project):
-    r = audit.result
-    assert sum(reg["rows"] for reg in r.regions) == r.provenance["rows"] == 4_000
-    assert audit.members["region"].isin([reg["id"] for reg in r.regions]).all()
+    r = audit.analysis
+    assert sum(reg.rows for reg in r.regions) == r.provenance.rows == 4_000
+    assert audit.members["region"].isin([reg.id for reg in r.regions]).all()
 
 
 def test_the_island_pocket_is_a_confirmed_weak_region(audit, project):
     _, sim = project
-    r = audit.result
+    r = audit.analysis
     assert r.weak_regions, "no weak region confirmed"
     w = r.weak_regions[0]
     in_w1 = audit.members["weak_regions"].map(lambda regions: "W1" in regions)
     rows = audit.members.loc[in_w1, "id"].str[1:].astype(int).to_numpy()
     inter = int(sim.pocket[rows].sum())
     assert inter / (rows.size + sim.pocket.sum() - inter) >= 0.5
-    assert w["confirmed"] and w["p_adjusted"] <= 0.05
-    assert w["confirmation"]["rows"] >= 30
-    assert w["description"]["rule"]["text"] != "no rule"
-    assert w["local_model"]["verdict"] in ("local model better", "no clear gain")
-    assert 0.0 <= w["stability"] <= 1.0
+    assert w.confirmed and w.p_adjusted <= 0.05
+    assert w.confirmation.rows >= 30
+    assert w.description.rule.text != "no rule"
+    assert w.local_model.verdict in ("local model better", "no clear gain")
+    assert 0.0 <= w.stability <= 1.0
 
 
 def test_each_finding_says_which_graph_it_came_from(audit):
-    graphs = {s["name"] for s in audit.result.search}
+    graphs = {s.name for s in audit.analysis.search}
     assert graphs == {"features", "error_aware"}
-    assert all(c["graph"] in graphs for c in audit.result.candidates)
+    assert all(c.graph in graphs for c in audit.analysis.candidates)
 
 
 def test_the_later_release_is_compared_with_the_earlier(audit):
-    comp = audit.result.comparison
-    assert comp["baseline"] == "1.0" and comp["candidate"] == "1.1"
-    assert sum(c["rows"] for c in comp["regions"]) == 4_000
+    comp = audit.analysis.comparison
+    assert comp.baseline == "1.0" and comp.candidate == "1.1"
+    assert sum(c.rows for c in comp.regions) == 4_000
 
 
 def test_bundle_is_byte_identical_for_the_same_input(audit, project, tmp_path, monkeypatch):
@@ -107,9 +108,9 @@ def test_bundle_is_byte_identical_for_the_same_input(audit, project, tmp_path, m
 
 
 def test_graph_json_holds_no_row_ids(audit):
-    text = json.dumps(audit.graph)
+    text = canonical_json(audit.graph)
     assert "R00001" not in text
-    assert all("members" not in node for node in audit.graph["nodes"])
+    assert all("members" not in node for node in json.loads(text)["nodes"])
 
 
 def test_cli_audit_writes_the_bundle_and_refuses_a_non_empty_folder(project, tmp_path, capsys):
@@ -150,14 +151,16 @@ def test_a_regression_audit_runs_end_to_end_and_finds_the_residual_pocket(tmp_pa
         encoding="utf-8",
     )
     audit = run_audit(load_config(tmp_path / "reg.toml"))
-    r = audit.result
+    r = audit.analysis
     assert r.task == "regression" and set(r.overall) >= {"mae", "rmse", "bias", "r2"}
-    assert r.weak_regions and r.weak_regions[0]["kind"] == "squared_error"
+    assert r.weak_regions and r.weak_regions[0].kind == "squared_error"
     in_w1 = audit.members["weak_regions"].map(lambda regions: "W1" in regions)
     rows = audit.members.loc[in_w1, "id"].str[1:].astype(int).to_numpy()
     inter = int(pocket[rows].sum())
     assert inter / (rows.size + pocket.sum() - inter) >= 0.5
-    assert r.comparison["baseline"] == "a" and len(r.comparison["regions"]) == len(r.regions)
+    assert r.comparison.baseline == "a" and len(r.comparison.regions) == len(r.regions)
+    assert all(reg.calibration is None for reg in r.regions)  # no bins for a regression
+    assert all(n.positive_rate is None for n in audit.graph.nodes)
     from topoaudit.report.page import build_page
 
     page = build_page(json.loads(r.to_json()), audit.graph).markdown

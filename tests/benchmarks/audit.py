@@ -129,8 +129,8 @@ def _child(n_rows: int, n_features: int, folder: str) -> None:
             {
                 "seconds": took,
                 "peak_mib": peak,
-                "weak": len(audit.result.weak_regions),
-                "stability_runs": len(audit.result.stability["runs"]),
+                "weak": len(audit.analysis.weak_regions),
+                "stability_runs": len(audit.analysis.stability.runs),
             }
         )
     )

@@ -218,6 +218,7 @@ def test_the_command_fence_cannot_be_closed_by_the_command(hostile_page):
 def test_diff_summary_escapes_names_and_ids():
     d = {
         "model": HOSTILE[0],
+        "task": "binary",
         "before": HOSTILE[1],
         "after": HOSTILE[2],
         "same_rows": True,

@@ -55,12 +55,12 @@ def test_replacing_a_release_keeps_the_old_bundle_in_history(fixture_archive, tm
     publish(bundles["2026.1"], archive, replace=True)
     history = archive / "meter-failure" / ".history" / "2026.1" / "1"
     assert (history / "analysis.json").exists()
-    assert [r["release"] for r in list_releases(archive, "meter-failure")] == ["2026.1"]
+    assert [r.release for r in list_releases(archive, "meter-failure")] == ["2026.1"]
 
 
 def test_releases_are_listed_newest_first(fixture_archive):
     _, _, archive = fixture_archive
-    assert [r["release"] for r in list_releases(archive, "meter-failure")] == ["2026.2", "2026.1"]
+    assert [r.release for r in list_releases(archive, "meter-failure")] == ["2026.2", "2026.1"]
 
 
 def test_rebuilding_the_same_archive_gives_byte_identical_pages(

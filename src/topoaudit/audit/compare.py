@@ -13,33 +13,15 @@ at most ``fdr`` and its change is positive (negative).
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import stats as _st
 
 from topoaudit.audit.stats import benjamini_hochberg, mcnemar_exact
+from topoaudit.bundle.records import RegionChange
 
 __all__ = ["Comparison", "RegionChange", "compare_releases"]
-
-
-@dataclass(frozen=True)
-class RegionChange:
-    region: int
-    rows: int
-    before: float
-    after: float
-    change: float
-    low: float
-    high: float
-    worse_only_after: int
-    worse_only_before: int
-    p_value: float
-    p_adjusted: float
-    verdict: str
-
-    def as_dict(self) -> dict:
-        return asdict(self)
 
 
 @dataclass(frozen=True)

@@ -13,47 +13,18 @@ Three descriptions, each labelled as what it is:
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
-
 import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeClassifier
 
+from topoaudit.bundle.records import (
+    CategoryContrast,
+    Description,
+    FeatureContrast,
+    SurrogateRule,
+)
+
 __all__ = ["Description", "describe_region"]
-
-
-@dataclass(frozen=True)
-class FeatureContrast:
-    feature: str
-    region_mean: float
-    rest_mean: float
-    smd: float
-
-
-@dataclass(frozen=True)
-class CategoryContrast:
-    feature: str
-    category: str
-    region_share: float
-    rest_share: float
-
-
-@dataclass(frozen=True)
-class SurrogateRule:
-    text: str
-    precision: float
-    recall: float
-    depth: int
-
-
-@dataclass(frozen=True)
-class Description:
-    contrasts: tuple[FeatureContrast, ...]
-    categories: tuple[CategoryContrast, ...]
-    rule: SurrogateRule
-
-    def as_dict(self) -> dict:
-        return asdict(self)
 
 
 def _smd(a: np.ndarray, b: np.ndarray) -> float:

@@ -12,8 +12,6 @@ either class, for every fold is reported as too small to try.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
-
 import numpy as np
 from scipy import stats as _st
 from sklearn.ensemble import HistGradientBoostingClassifier, HistGradientBoostingRegressor
@@ -24,27 +22,12 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 from topoaudit.audit.metrics import log_loss
+from topoaudit.bundle.records import LocalModelTest
 from topoaudit.errors import ParameterError
 
 __all__ = ["LOCAL_MODELS", "LocalModelTest", "local_model_test"]
 
 LOCAL_MODELS = ("logistic", "ridge", "tree", "boosting")
-
-
-@dataclass(frozen=True)
-class LocalModelTest:
-    rows: int
-    folds: int
-    model: str
-    release_loss: float
-    local_loss: float
-    difference: float
-    low: float
-    high: float
-    verdict: str
-
-    def as_dict(self) -> dict:
-        return asdict(self)
 
 
 def _model(name: str, task: str, random_state: int):

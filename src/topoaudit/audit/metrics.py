@@ -12,13 +12,13 @@ the other metrics carry seeded percentile-bootstrap intervals when asked for.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
 from sklearn.metrics import roc_auc_score
 
 from topoaudit.audit.stats import bootstrap_interval, wilson_interval
+from topoaudit.bundle.records import Estimate
 
 __all__ = [
     "Estimate",
@@ -30,18 +30,6 @@ __all__ = [
 ]
 
 NAN = float("nan")
-
-
-@dataclass(frozen=True)
-class Estimate:
-    """A metric's value and its interval (``nan`` bounds when none was computed)."""
-
-    value: float
-    low: float = NAN
-    high: float = NAN
-
-    def as_dict(self) -> dict[str, float]:
-        return asdict(self)
 
 
 def _safe_ratio(a: float, b: float) -> float:
@@ -222,8 +210,3 @@ def regression_metrics(
     out: dict[str, Estimate] = {"rows": Estimate(float(n))}
     out.update(_estimates(point, n, confidence, bootstrap, random_state))
     return out
-
-
-def metrics_as_dict(metrics: dict[str, Estimate]) -> dict[str, Any]:
-    """``{name: {"value", "low", "high"}}`` for JSON."""
-    return {k: v.as_dict() for k, v in metrics.items()}

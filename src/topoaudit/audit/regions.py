@@ -48,18 +48,14 @@ def partition_graph(
     >>> p.node_region.tolist(), p.row_region.tolist()
     ([1, 1, 2], [1, 1, 1, 0, 0, 2, 2])
     """
-    g = nx.Graph()
-    g.add_nodes_from(range(graph.n_nodes))
-    for (a, b), w in zip(graph.edges, graph.edge_jaccard, strict=True):
-        g.add_edge(int(a), int(b), weight=float(w))
     communities = nx.community.louvain_communities(
-        g, weight="weight", resolution=resolution, seed=random_state
+        graph.to_networkx(), weight="jaccard", resolution=resolution, seed=random_state
     )
     sizes = graph.node_sizes
     keyed = []
     for com in communities:
         nodes = sorted(com)
-        rows = np.unique(np.concatenate([graph.members[v] for v in nodes]))
+        rows = graph.rows_of(nodes)
         keyed.append((-rows.size, nodes[0], nodes))
     keyed.sort()
     node_region = np.zeros(graph.n_nodes, dtype=np.int64)

@@ -18,44 +18,22 @@ that set it apart, and for each weak region the feature it lies on.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
-from typing import Any
-
 import numpy as np
 
 from topoaudit.audit.describe import _smd
+from topoaudit.bundle.records import OnFeature, ShapeColumn, ShapeFeatureRecord
 from topoaudit.mapper.features import ShapeSummary
 from topoaudit.mapper.graph import MapperGraph
 
-__all__ = ["ShapeFeatureView", "describe_shape", "place_on_features"]
+__all__ = ["describe_shape", "place_on_features"]
 
 _TOP_COLUMNS = 3
 _ON_FEATURE_SHARE = 0.5
 
 
-@dataclass(frozen=True)
-class ShapeFeatureView:
-    """One feature of the shape as the page and ``analysis.json`` show it."""
-
-    name: str
-    kind: str
-    confidence: float | None
-    extent: float
-    filter_low: float
-    filter_high: float
-    nodes: tuple[int, ...]
-    rows: int
-    tip_node: int | None
-    columns: tuple[dict[str, Any], ...]
-    main: bool = False
-
-    def as_dict(self) -> dict[str, Any]:
-        return asdict(self)
-
-
 def _contrast_columns(
     X: np.ndarray, names: list[str], rows: np.ndarray, against: np.ndarray | None = None
-) -> list[dict[str, Any]]:
+) -> list[ShapeColumn]:
     """The columns that set ``rows`` apart from ``against`` (default: all other rows)."""
     inside = np.zeros(X.shape[0], dtype=bool)
     inside[rows] = True
@@ -70,14 +48,14 @@ def _contrast_columns(
     smds = [_smd(X[inside, j], X[other, j]) for j in range(X.shape[1])]
     order = sorted(range(X.shape[1]), key=lambda j: (-abs(smds[j]), j))[:_TOP_COLUMNS]
     return [
-        {"column": names[j], "smd": smds[j], "direction": "higher" if smds[j] > 0 else "lower"}
+        ShapeColumn(names[j], smd=smds[j], direction="higher" if smds[j] > 0 else "lower")
         for j in order
     ]
 
 
 def _loop_columns(
     X: np.ndarray, names: list[str], members: tuple[np.ndarray, ...], nodes: tuple[int, ...]
-) -> list[dict[str, Any]]:
+) -> list[ShapeColumn]:
     parts = [members[v] for v in nodes]
     rows = np.concatenate(parts)
     total = X[rows].var(axis=0) * rows.size
@@ -87,7 +65,7 @@ def _loop_columns(
         between += m.size * (X[m].mean(axis=0) - grand) ** 2
     eta = np.divide(between, total, out=np.zeros_like(between), where=total > 0)
     order = sorted(range(X.shape[1]), key=lambda j: (-eta[j], j))[:_TOP_COLUMNS]
-    return [{"column": names[j], "eta_squared": float(eta[j])} for j in order]
+    return [ShapeColumn(names[j], eta_squared=float(eta[j])) for j in order]
 
 
 def describe_shape(
@@ -95,7 +73,7 @@ def describe_shape(
     graph: MapperGraph,
     X: np.ndarray,
     names: list[str],
-) -> list[ShapeFeatureView]:
+) -> list[ShapeFeatureRecord]:
     """Name and describe each feature of ``summary``, the features of ``graph`` (``X``:
     the feature matrix in the user's units).
 
@@ -104,7 +82,7 @@ def describe_shape(
     "separate group 1", "separate group 2"... Components of a single node (no extent in
     the filter) are left out.
     """
-    out: list[ShapeFeatureView] = []
+    out: list[ShapeFeatureRecord] = []
     components = [f for f in summary.of_kind("component")]
     members = graph.members
     main = max(components, key=lambda f: (graph.rows_of(f.nodes).size, -min(f.nodes)))
@@ -129,7 +107,7 @@ def describe_shape(
                 counters[kind] += 1
                 name = f"{label[kind]} {counters[kind]}"
             out.append(
-                ShapeFeatureView(
+                ShapeFeatureRecord(
                     name=name,
                     kind=kind,
                     confidence=f.confidence,
@@ -147,8 +125,8 @@ def describe_shape(
 
 
 def place_on_features(
-    rows: np.ndarray, features: list[ShapeFeatureView], graph: MapperGraph
-) -> dict[str, Any] | None:
+    rows: np.ndarray, features: list[ShapeFeatureRecord], graph: MapperGraph
+) -> OnFeature | None:
     """The most specific feature (fewest rows) holding at least half of ``rows``, with
     that share, and whether it is the feature's tip (at least half of the tip node's rows
     are in ``rows``); None when no feature other than the main component holds half."""
@@ -167,4 +145,4 @@ def place_on_features(
     if f.tip_node is not None:
         tip_rows = graph.members[f.tip_node]
         at_tip = bool(np.isin(tip_rows, rows).mean() >= _ON_FEATURE_SHARE)
-    return {"feature": f.name, "kind": f.kind, "share": share, "at_tip": at_tip}
+    return OnFeature(feature=f.name, kind=f.kind, share=share, at_tip=at_tip)

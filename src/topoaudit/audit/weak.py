@@ -46,6 +46,7 @@ from typing import Any
 import numpy as np
 
 from topoaudit.audit.stats import benjamini_hochberg, binomial_upper_test, permutation_upper_test
+from topoaudit.bundle.records import HalfEstimate
 from topoaudit.mapper.graph import MapperGraph
 
 __all__ = [
@@ -144,35 +145,15 @@ def _llr(observed: np.ndarray, expected: np.ndarray, total: float) -> np.ndarray
     return np.where((o > e) & (e > 0), inside + outside, 0.0)
 
 
-@dataclass(frozen=True)
-class HalfEstimate:
-    """A region on one half: rows, observed and expected loss, and their rates."""
+@dataclass(frozen=True, eq=False)
+class Found:
+    """A place found on the discovery half, before it is tested: its scan statistic, its
+    nodes, its discovery rows and, for a level set, the lens level it was trimmed at."""
 
-    rows: int
-    observed: float
-    expected: float
-
-    @property
-    def observed_rate(self) -> float:
-        return self.observed / self.rows if self.rows else float("nan")
-
-    @property
-    def expected_rate(self) -> float:
-        return self.expected / self.rows if self.rows else float("nan")
-
-    @property
-    def ratio(self) -> float:
-        return self.observed / self.expected if self.expected > 0 else float("nan")
-
-    def as_dict(self) -> dict[str, float]:
-        return {
-            "rows": self.rows,
-            "observed": self.observed,
-            "expected": self.expected,
-            "observed_rate": self.observed_rate,
-            "expected_rate": self.expected_rate,
-            "ratio": self.ratio,
-        }
+    llr: float
+    nodes: tuple[int, ...]
+    rows: np.ndarray
+    lens_threshold: float = float("nan")
 
 
 @dataclass(frozen=True, eq=False)
@@ -288,7 +269,7 @@ def _grown(
     *,
     max_share: float,
     max_seeds: int = 30,
-) -> list[tuple[float, tuple[int, ...], np.ndarray]]:
+) -> list[Found]:
     node_rows = [m[half[m]] for m in graph.members]
     nbrs: list[list[int]] = [[] for _ in range(graph.n_nodes)]
     for a, b in graph.edges:
@@ -306,10 +287,13 @@ def _grown(
         score, nodes = _grow(v, node_rows, neighbours, obs, exp, total, max_rows)
         if score > 0:
             found[nodes] = score
-    return [
-        (score, nodes, np.unique(np.concatenate([node_rows[v] for v in nodes])))
-        for nodes, score in found.items()
-    ]
+    return [Found(score, nodes, _half_rows(graph, nodes, half)) for nodes, score in found.items()]
+
+
+def _half_rows(graph: MapperGraph, nodes: tuple[int, ...], half: np.ndarray) -> np.ndarray:
+    """The sorted rows of ``nodes`` that lie in ``half``."""
+    rows = graph.rows_of(nodes)
+    return rows[half[rows]]
 
 
 def _level_sets(
@@ -321,10 +305,10 @@ def _level_sets(
     half: np.ndarray,
     *,
     max_share: float,
-) -> list[tuple[float, tuple[int, ...], np.ndarray, float]]:
+) -> list[Found]:
     """Upper level sets of ``lens`` on the graph: for each interval from the top, the
     components of the nodes at or above it, each trimmed to the lens level that
-    maximises the LLR. Returns (LLR, nodes, half rows, lens threshold) per component."""
+    maximises the LLR (one :class:`Found` per component)."""
     level = graph.node_element[:, 0]
     out = []
     limit = max_share * half.sum()
@@ -333,8 +317,7 @@ def _level_sets(
         if sum(int(half[graph.members[v]].sum()) for v in np.flatnonzero(chosen)) > 2 * limit:
             break
         for nodes in _components(graph, chosen):
-            rows = np.unique(np.concatenate([graph.members[v] for v in nodes]))
-            rows = rows[half[rows]]
+            rows = _half_rows(graph, nodes, half)
             if rows.size == 0:
                 continue
             order = rows[np.argsort(-lens[rows], kind="stable")]
@@ -344,7 +327,7 @@ def _level_sets(
             m = int(np.argmax(scores))
             if scores[m] > 0:
                 out.append(
-                    (float(scores[m]), nodes, np.sort(order[: m + 1]), float(lens[order[m]]))
+                    Found(float(scores[m]), nodes, np.sort(order[: m + 1]), float(lens[order[m]]))
                 )
     return out
 
@@ -362,13 +345,13 @@ def _components(graph: MapperGraph, chosen: np.ndarray) -> list[tuple[int, ...]]
     return [tuple(int(v) for v in nodes[labels[nodes] == c]) for c in np.unique(labels[nodes])]
 
 
-def _pick(candidates: list, max_candidates: int) -> list:
+def _pick(candidates: list[Found], max_candidates: int) -> list[Found]:
     """The strongest candidates; one that shares more than half of its (or the other's)
     rows with a stronger pick is the same place seen again, and is dropped."""
-    ranked = sorted(candidates, key=lambda c: (-c[0], c[1]))
-    picked: list = []
+    ranked = sorted(candidates, key=lambda c: (-c.llr, c.nodes))
+    picked: list[Found] = []
     for cand in ranked:
-        if any(_overlap(cand[2], other[2]) > 0.5 for other in picked):
+        if any(_overlap(cand.rows, other.rows) > 0.5 for other in picked):
             continue
         picked.append(cand)
         if len(picked) == max_candidates:
@@ -389,7 +372,7 @@ def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
 
 
 def _estimate(rows: np.ndarray, obs: np.ndarray, exp: np.ndarray) -> HalfEstimate:
-    return HalfEstimate(int(rows.size), float(obs[rows].sum()), float(exp[rows].sum()))
+    return HalfEstimate.of(int(rows.size), float(obs[rows].sum()), float(exp[rows].sum()))
 
 
 def find_weak_regions(
@@ -423,12 +406,10 @@ def find_weak_regions(
                     graph, search.lens, d_obs, d_exp, d_total, discovery, max_share=max_share
                 )
             else:
-                found = [
-                    (*c, float("nan"))
-                    for c in _grown(graph, d_obs, d_exp, d_total, discovery, max_share=max_share)
-                ]
-            for score, nodes, d_rows, threshold in _pick(found, max_candidates):
-                all_rows = np.unique(np.concatenate([graph.members[v] for v in nodes]))
+                found = _grown(graph, d_obs, d_exp, d_total, discovery, max_share=max_share)
+            for place in _pick(found, max_candidates):
+                nodes, d_rows, threshold = place.nodes, place.rows, place.lens_threshold
+                all_rows = graph.rows_of(nodes)
                 if np.isfinite(threshold):
                     all_rows = all_rows[search.lens[all_rows] >= threshold]
                 c_rows = all_rows[confirmation[all_rows]]
@@ -454,7 +435,7 @@ def find_weak_regions(
                         kind=loss.kind,
                         nodes=nodes,
                         rows=all_rows,
-                        llr=score,
+                        llr=place.llr,
                         lens_threshold=threshold,
                         discovery=_estimate(d_rows, d_obs, d_exp),
                         confirmation=conf,

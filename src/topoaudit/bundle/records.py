@@ -45,12 +45,16 @@ __all__ = [
     "Invariants",
     "Link",
     "LocalModelTest",
+    "MetricChange",
     "Metrics",
     "Node",
     "OnFeature",
     "Provenance",
+    "RegionBrief",
     "RegionChange",
+    "RegionMatch",
     "RegionRecord",
+    "ReleaseChanges",
     "SearchGraphRecord",
     "ShapeColumn",
     "ShapeFeatureRecord",
@@ -201,7 +205,7 @@ class _Record:
         return from_dict(cls, data, where or f"{cls.__name__}:")
 
 
-record = dataclass(frozen=True, kw_only=True)
+record = dataclass(frozen=True)
 
 # -- metrics -------------------------------------------------------------------------------
 
@@ -527,6 +531,52 @@ class Comparison(_Record):
     baseline_overall: Metrics
 
 
+# -- what changed between two bundles ---------------------------------------------------------
+
+
+@record
+class MetricChange(_Record):
+    metric: str
+    before: Stat
+    after: Stat
+    change: Stat
+
+
+@record
+class RegionBrief(_Record):
+    """A weak region gained or lost, as a diff shows it (statistics None when small)."""
+
+    id: str
+    rows: int
+    kind: str
+    ratio: Stat
+    p_adjusted: Stat
+
+
+@record
+class RegionMatch(_Record):
+    """A weak region of the earlier audit seen again in the later one."""
+
+    before: str
+    after: str
+    jaccard: float
+
+
+@record
+class ReleaseChanges(_Record):
+    """What changed between two bundles of one model (both read as public views)."""
+
+    model: str
+    task: str
+    before: str
+    after: str
+    same_rows: bool
+    metrics: tuple[MetricChange, ...]
+    kept: tuple[RegionMatch, ...]
+    gained: tuple[RegionBrief, ...]
+    lost: tuple[RegionBrief, ...]
+
+
 # -- the whole analysis ----------------------------------------------------------------------
 
 
@@ -574,7 +624,7 @@ class Analysis(_Record):
     weak_regions: tuple[WeakRegion, ...]
     candidates: tuple[Candidate, ...]
     stability: Stability
-    comparison: Comparison | None = None
     summary: Summary
+    comparison: Comparison | None = None
     schema: int = SCHEMA
     extra: dict[str, Any] = field(default_factory=dict)

@@ -10,7 +10,9 @@ its name and loses every statistic: each becomes ``None``, which the pages print
 of means (the small-cell rule of statistical disclosure control; common practice, no
 source).
 
-The view is a new pair of dicts; the inputs are not changed.
+The view is a new :class:`~topoaudit.bundle.records.Analysis` (and
+:class:`~topoaudit.bundle.records.GraphDocument`); the inputs are not changed. It can be
+made from a record or from the parsed JSON of a bundle file.
 """
 
 from __future__ import annotations
@@ -18,9 +20,10 @@ from __future__ import annotations
 import copy
 from typing import Any
 
+from topoaudit.bundle.records import Analysis, GraphDocument, to_dict
 from topoaudit.limits import MIN_CELL_ROWS
 
-__all__ = ["MIN_CELL_ROWS", "is_small", "public_graph", "public_view"]
+__all__ = ["MIN_CELL_ROWS", "is_small", "public_graph", "public_view", "suppressed_cells"]
 
 #: the keys of a cell that are its size, its name or its place, kept when its statistics go
 _KEPT = frozenset(
@@ -43,7 +46,8 @@ _KEPT = frozenset(
         "on_feature",
     }
 )
-_SIZES = frozenset({"id", "rows", "region", "name"})
+#: sizes, names and settings, kept at every depth of a small cell
+_SIZES = frozenset({"id", "rows", "region", "name", "folds", "depth", "model", "column"})
 
 
 def is_small(rows: Any) -> bool:
@@ -76,16 +80,25 @@ def _halves(w: dict[str, Any]) -> None:
         w["effect"] = None
 
 
-def public_view(analysis: dict[str, Any]) -> dict[str, Any]:
-    """A copy of ``analysis`` (the parsed analysis.json) with small cells suppressed.
+def public_view(analysis: Analysis | dict[str, Any]) -> Analysis:
+    """``analysis`` (a record, or the parsed analysis.json) with small cells suppressed."""
+    return Analysis.from_dict(_suppressed(analysis), "analysis.json (public view):")
+
+
+def suppressed_cells(analysis: dict[str, Any]) -> dict[str, Any]:
+    """The suppression of :func:`public_view` on plain data, for any part of an analysis.
 
     Examples
     --------
     >>> a = {"regions": [{"id": 1, "rows": 4, "metrics": {"error_rate": {"value": 0.5}}}]}
-    >>> public_view(a)["regions"][0]
+    >>> suppressed_cells(a)["regions"][0]
     {'id': 1, 'rows': 4, 'metrics': {'error_rate': {'value': None}}}
     """
-    out = copy.deepcopy(analysis)
+    return _suppressed(analysis)
+
+
+def _suppressed(analysis: Analysis | dict[str, Any]) -> dict[str, Any]:
+    out = to_dict(analysis) if isinstance(analysis, Analysis) else copy.deepcopy(analysis)
     _suppress(out.get("regions"))
     for r in out.get("regions") or []:
         if isinstance(r.get("calibration"), list):
@@ -107,8 +120,8 @@ def public_view(analysis: dict[str, Any]) -> dict[str, Any]:
     return out
 
 
-def public_graph(graph: dict[str, Any]) -> dict[str, Any]:
-    """A copy of ``graph`` (the parsed graph.json) whose small nodes carry no statistic."""
-    out = copy.deepcopy(graph)
+def public_graph(graph: GraphDocument | dict[str, Any]) -> GraphDocument:
+    """``graph`` (a record, or the parsed graph.json) whose small nodes carry no statistic."""
+    out = to_dict(graph) if isinstance(graph, GraphDocument) else copy.deepcopy(graph)
     _suppress(out.get("nodes"))
-    return out
+    return GraphDocument.from_dict(out, "graph.json (public view):")

@@ -32,22 +32,31 @@ import contextlib
 import ctypes
 import errno
 import functools
-import hashlib
-import json
 import os
 import re
 import shutil
-import stat
 import sys
 import tempfile
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
-from topoaudit.audit.result import build_date, canonical_json
+from topoaudit.bundle import public_view
+from topoaudit.bundle.files import (
+    CHECKSUMS,
+    build_date,
+    bundle_files,
+    canonical_json,
+    fsync_path,
+    read_analysis,
+    read_json,
+    sha256,
+    write_checksums,
+    write_file,
+)
+from topoaudit.bundle.records import Analysis
 from topoaudit.config import NAME_PATTERN
-from topoaudit.errors import ArchiveError
+from topoaudit.errors import ArchiveError, BundleError
 
 try:  # pragma: no cover - every supported platform has fcntl
     import fcntl
@@ -59,6 +68,7 @@ __all__ = [
     "LOCK",
     "ArchiveError",
     "Finding",
+    "PublishedRelease",
     "Stage",
     "Verification",
     "bundle_findings",
@@ -71,7 +81,6 @@ __all__ = [
     "write_checksums",
 ]
 
-CHECKSUMS = "checksums.json"
 PUBLISHED = "published.json"
 HISTORY = ".history"
 INCOMING = ".incoming-"
@@ -93,63 +102,6 @@ def check_name(kind: str, name: object) -> str:
 # -- files -------------------------------------------------------------------------------
 
 
-def _sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
-
-def _files(folder: Path) -> dict[str, Path]:
-    """Regular files under ``folder`` by POSIX relative path; refuses links and devices."""
-    if folder.is_symlink():
-        raise ArchiveError(
-            f"{folder}: is a symbolic link; bundles and archives may not hold links."
-        )
-    out: dict[str, Path] = {}
-    for root, dirs, names in os.walk(folder):
-        base = Path(root)
-        for name in sorted(dirs + names):
-            path = base / name
-            mode = path.lstat().st_mode
-            if stat.S_ISLNK(mode):
-                msg = (
-                    f"{path}: is a symbolic link; bundles and archives may hold only plain "
-                    "files and folders."
-                )
-                raise ArchiveError(msg)
-            if stat.S_ISREG(mode):
-                out[path.relative_to(folder).as_posix()] = path
-            elif not stat.S_ISDIR(mode):
-                raise ArchiveError(f"{path}: is not a plain file or folder.")
-    return dict(sorted(out.items()))
-
-
-def fsync_path(path: Path, *, directory: bool = False) -> None:
-    flags = os.O_RDONLY | (getattr(os, "O_DIRECTORY", 0) if directory else 0)
-    try:
-        fd = os.open(path, flags)
-    except OSError:  # pragma: no cover - a platform that cannot open folders
-        return
-    try:
-        os.fsync(fd)
-    except OSError:  # pragma: no cover
-        pass
-    finally:
-        os.close(fd)
-
-
-def write_file(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file, flushed, then renamed."""
-    tmp = path.with_name(f".{path.name}.tmp")
-    with open(tmp, "w", encoding="utf-8") as f:
-        f.write(text)
-        f.flush()
-        os.fsync(f.fileno())
-    os.replace(tmp, path)
-
-
 def _flush_tree(folder: Path) -> None:
     """Flush every file and folder under ``folder`` to disk (fsync(2))."""
     for root, _dirs, names in os.walk(folder):
@@ -160,7 +112,7 @@ def _flush_tree(folder: Path) -> None:
 
 def _copy_tree(src: Path, dst: Path) -> None:
     """Copy a bundle's plain files (links refused); :meth:`Stage.commit` flushes them."""
-    _files(src)  # refuses links and special files before anything is copied
+    bundle_files(src)  # refuses links and special files before anything is copied
     shutil.copytree(src, dst, copy_function=shutil.copyfile)
 
 
@@ -335,15 +287,6 @@ def staging(
 # -- checksums ---------------------------------------------------------------------------
 
 
-def write_checksums(folder: str | Path) -> Path:
-    """Record the SHA-256 of every file of the bundle ``folder`` in ``checksums.json``."""
-    folder = Path(folder)
-    files = {rel: _sha256(p) for rel, p in _files(folder).items() if rel != CHECKSUMS}
-    path = folder / CHECKSUMS
-    write_file(path, canonical_json({"algorithm": "sha256", "files": files}))
-    return path
-
-
 @dataclass(frozen=True)
 class Finding:
     """One thing :func:`verify_archive` found: ``kind`` is one of changed, missing, added,
@@ -363,10 +306,6 @@ class Finding:
         return f"{self.kind:<10} {self.path}" + (f"  ({self.detail})" if self.detail else "")
 
 
-def _read_json(path: Path) -> Any:
-    return json.loads(path.read_text(encoding="utf-8"))
-
-
 def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> list[Finding]:
     """Compare the files of a bundle with its ``checksums.json``."""
     folder = Path(folder)
@@ -376,11 +315,11 @@ def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> l
         return p.relative_to(base).as_posix() if p != base else "."
 
     try:
-        files = _files(folder)
+        files = bundle_files(folder)
     except ArchiveError as exc:
         return [Finding("link", rel(folder), str(exc))]
     try:
-        recorded = _read_json(folder / CHECKSUMS)["files"]
+        recorded = read_json(folder / CHECKSUMS)["files"]
         if not isinstance(recorded, dict):
             raise TypeError("files is not a table")
     except FileNotFoundError:
@@ -392,7 +331,7 @@ def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> l
         path = folder / name
         if name not in files:
             found.append(Finding("missing", rel(path)))
-        elif _sha256(path) != digest:
+        elif sha256(path) != digest:
             found.append(Finding("changed", rel(path), "its SHA-256 differs from checksums.json"))
     for name in files:
         if name != CHECKSUMS and name not in recorded:
@@ -416,20 +355,18 @@ def refuse_changed(folder: Path) -> None:
 # -- publishing ---------------------------------------------------------------------------
 
 
-def _read_analysis(folder: Path) -> dict[str, Any]:
-    path = folder / "analysis.json"
+def _read_analysis(folder: Path) -> Analysis:
+    """The Analysis of a bundle; a folder that holds none is refused as an archive error."""
     try:
-        return _read_json(path)
-    except FileNotFoundError:
-        raise ArchiveError(f"{folder}: not a bundle (no analysis.json).") from None
-    except (OSError, ValueError) as exc:
-        raise ArchiveError(f"{path}: cannot be read ({exc}).") from exc
+        return read_analysis(folder)
+    except BundleError as exc:
+        raise ArchiveError(str(exc)) from exc
 
 
 def _sequence(bundle: Path) -> list[int]:
     """The publication number of a bundle, as a list of none or one."""
     try:
-        return [int(_read_json(bundle / PUBLISHED)["sequence"])]
+        return [int(read_json(bundle / PUBLISHED)["sequence"])]
     except (OSError, ValueError, KeyError, TypeError):
         return []
 
@@ -469,7 +406,7 @@ def _replaced_bundle(tmp: Path) -> Path | None:
     fallback exchange parks it in ``tmp/bundle.swap`` instead).
     """
     try:
-        intent = _read_json(tmp / _INTENT)
+        intent = read_json(tmp / _INTENT)
     except (OSError, ValueError):
         return None
     if not isinstance(intent, dict):
@@ -486,7 +423,7 @@ def _finish_replace(model_dir: Path, tmp: Path) -> None:
     """File the old bundle an interrupted replace left in ``tmp``, or put it back."""
     old = _replaced_bundle(tmp)
     if old is not None:
-        release = check_name("release", _read_json(tmp / _INTENT).get("release"))
+        release = check_name("release", read_json(tmp / _INTENT).get("release"))
         if not (model_dir / release).exists():
             os.rename(old, model_dir / release)  # the fallback exchange stopped half-way
         else:
@@ -495,7 +432,7 @@ def _finish_replace(model_dir: Path, tmp: Path) -> None:
 
 def _checksums_digest(folder: Path) -> str | None:
     try:
-        return _sha256(folder / CHECKSUMS)
+        return sha256(folder / CHECKSUMS)
     except OSError:
         return None
 
@@ -503,11 +440,11 @@ def _checksums_digest(folder: Path) -> str | None:
 def _same_bundle(bundle: Path, published: Path) -> bool:
     """True if ``published`` holds exactly the files of ``bundle`` (plus its own records)."""
     try:
-        recorded = dict(_read_json(published / CHECKSUMS)["files"])
+        recorded = dict(read_json(published / CHECKSUMS)["files"])
     except (OSError, ValueError, KeyError, TypeError):
         return False
     recorded.pop(PUBLISHED, None)
-    mine = {rel: _sha256(p) for rel, p in _files(bundle).items() if rel != CHECKSUMS}
+    mine = {rel: sha256(p) for rel, p in bundle_files(bundle).items() if rel != CHECKSUMS}
     return mine == recorded and not bundle_findings(published)
 
 
@@ -526,9 +463,9 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
     if not bundle.is_dir():
         raise ArchiveError(f"{bundle}: no such bundle folder.")
     a = _read_analysis(bundle)
-    model = check_name("model", a.get("model", ""))
-    release = check_name("release", a.get("release", ""))
-    _files(bundle)
+    model = check_name("model", a.model)
+    release = check_name("release", a.release)
+    bundle_files(bundle)
     if (bundle / CHECKSUMS).exists():
         refuse_changed(bundle)
     if archive.is_symlink():
@@ -574,10 +511,22 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
     return dest
 
 
-def list_releases(archive: str | Path, model: str) -> list[dict[str, Any]]:
-    """Published releases of ``model``, newest first, with their analysis and sequence."""
+@dataclass(frozen=True)
+class PublishedRelease:
+    """A release as the archive holds it: its folder, publication and public view."""
+
+    release: str
+    folder: Path
+    sequence: int
+    published: str
+    analysis: Analysis
+
+
+def list_releases(archive: str | Path, model: str) -> list[PublishedRelease]:
+    """Published releases of ``model``, newest first, each with the public view of its
+    analysis (:func:`topoaudit.bundle.public_view`)."""
     folder = Path(archive) / model
-    out = []
+    out: list[PublishedRelease] = []
     if not folder.is_dir():
         return out
     for child in sorted(folder.iterdir()):
@@ -585,24 +534,17 @@ def list_releases(archive: str | Path, model: str) -> list[dict[str, Any]]:
             continue
         check_name("release", child.name)
         try:
-            meta = _read_json(child / PUBLISHED)
-            int(meta["sequence"]), str(meta["published"])
+            meta = read_json(child / PUBLISHED)
+            sequence, published = int(meta["sequence"]), str(meta["published"])
         except (OSError, ValueError, KeyError, TypeError) as exc:
             msg = (
                 f"{child / PUBLISHED}: cannot be read ({exc!r}); run topoaudit archive "
                 "verify to see what changed."
             )
             raise ArchiveError(msg) from exc
-        out.append(
-            {
-                "release": child.name,
-                "folder": child,
-                "sequence": meta["sequence"],
-                "published": meta["published"],
-                "analysis": _read_analysis(child),
-            }
-        )
-    out.sort(key=lambda r: -r["sequence"])
+        analysis = public_view(_read_analysis(child))
+        out.append(PublishedRelease(child.name, child, sequence, published, analysis))
+    out.sort(key=lambda r: -r.sequence)
     return out
 
 

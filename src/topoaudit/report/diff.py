@@ -9,72 +9,64 @@ from __future__ import annotations
 
 from typing import Any
 
+from topoaudit.audit.tasks import TASKS
 from topoaudit.bundle import MIN_CELL_ROWS, is_small
-from topoaudit.report.text import count, escape, pvalue, rate, signed
+from topoaudit.bundle.records import RegionBrief, ReleaseChanges
+from topoaudit.report.text import escape, plural, pvalue, rate, signed
 
 __all__ = ["diff_markdown"]
 
-NAMES = {
-    "error_rate": "error rate",
-    "false_positive_rate": "false positive rate",
-    "false_negative_rate": "false negative rate",
-    "roc_auc": "ROC AUC",
-    "brier": "Brier score",
-    "ece": "expected calibration error",
-    "mae": "mean absolute error",
-    "rmse": "RMSE",
-    "bias": "mean residual",
-    "r2": "R²",
-}
+#: metric key -> the words a page uses for it, for every task
+NAMES = {key: label for task in TASKS.values() for key, label in task.page_metrics}
 
 
-def diff_markdown(d: dict[str, Any], *, heading: str = "##") -> str:
+def diff_markdown(changes: ReleaseChanges | dict[str, Any], *, heading: str = "##") -> str:
     """Deterministic Markdown for the output of
-    :func:`topoaudit.audit.diff.bundle_diff`."""
+    :func:`topoaudit.audit.changes.release_changes` (a record or its plain form)."""
+    d = changes if isinstance(changes, ReleaseChanges) else ReleaseChanges.from_dict(changes)
     lines = [
-        f"{heading} {escape(d['model'])}: release {escape(d['after'])} against "
-        f"{escape(d['before'])}",
+        f"{heading} {escape(d.model)}: release {escape(d.after)} against {escape(d.before)}",
         "",
     ]
-    if not d["same_rows"]:
+    if not d.same_rows:
         lines += [
             "The two audits ran on different rows (fingerprints differ): metric changes "
             "mix model changes with data changes.",
             "",
         ]
     lines += ["| metric | before | after | change |", "|---|---|---|---|"]
-    for m in d["metrics"]:
+    for m in d.metrics:
         lines.append(
-            f"| {escape(NAMES.get(m['metric'], m['metric']))} | {rate(m['before'])} | "
-            f"{rate(m['after'])} | {signed(m['change'])} |"
+            f"| {escape(NAMES.get(m.metric, m.metric))} | {rate(m.before)} | "
+            f"{rate(m.after)} | {signed(m.change)} |"
         )
     lines.append("")
 
-    def listing(title: str, items: list[dict[str, Any]]) -> list[str]:
+    def listing(title: str, items: tuple[RegionBrief, ...]) -> list[str]:
         if not items:
             return [f"{title}: none.", ""]
         out = [f"{title}:", ""]
         for w in items:
             stats = (
                 f"statistics not shown (fewer than {MIN_CELL_ROWS} rows)"
-                if is_small(w["rows"])
-                else f"observed / promised {rate(w['ratio'], 2)}, adjusted p-value "
-                f"{pvalue(w['p_adjusted'])}"
+                if is_small(w.rows)
+                else f"observed / promised {rate(w.ratio, 2)}, adjusted p-value "
+                f"{pvalue(w.p_adjusted)}"
             )
             out.append(
-                f"- {escape(w['id'])}: {count(w['rows'])} rows, "
-                f"{escape(w['kind'].replace('_', ' '))}s, {stats}"
+                f"- {escape(w.id)}: {plural(w.rows, 'row')}, "
+                f"{escape(w.kind.replace('_', ' '))}s, {stats}"
             )
         return [*out, ""]
 
-    lines += listing("Weak regions gained", d["gained"])
-    lines += listing("Weak regions lost", d["lost"])
-    if d["kept"]:
+    lines += listing("Weak regions gained", d.gained)
+    lines += listing("Weak regions lost", d.lost)
+    if d.kept:
         lines.append(
             "Weak regions in both: "
             + ", ".join(
-                f"{escape(p['before'])} → {escape(p['after'])} (Jaccard {rate(p['jaccard'], 2)})"
-                for p in d["kept"]
+                f"{escape(p.before)} → {escape(p.after)} (Jaccard {rate(p.jaccard, 2)})"
+                for p in d.kept
             )
             + "."
         )

@@ -18,11 +18,13 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from topoaudit.audit.diff import bundle_diff
-from topoaudit.audit.result import build_date, canonical_json
+from topoaudit.audit.changes import release_changes
+from topoaudit.audit.tasks import task_named
+from topoaudit.bundle.files import build_date, canonical_json, read_members
 from topoaudit.progress import Progress
 from topoaudit.report.archive import (
     ArchiveError,
+    PublishedRelease,
     Stage,
     check_name,
     list_releases,
@@ -84,27 +86,26 @@ def _check_output(out: Path, archive: Path) -> None:
         raise ArchiveError(msg)
 
 
-def _history_page(model: str, rels: list[dict[str, Any]]) -> str:
+def _history_page(model: str, rels: list[PublishedRelease]) -> str:
+    headline_key, headline = task_named(rels[0].analysis.task).headline
     lines = [
         f"# {escape(model)}: release history",
         "",
         "Newest first. Each release links to its audit page.",
         "",
-        "| release | audited | rows | error rate | ROC AUC | weak regions | compared with "
+        f"| release | audited | rows | {headline} | ROC AUC | weak regions | compared with "
         "the release before |",
         "|---|---|---|---|---|---|---|",
     ]
     for i, r in enumerate(rels):
-        a = r["analysis"]
-        o = a["overall"]
-        err = o.get("error_rate", o.get("mae", {})).get("value")
-        auc = o.get("roc_auc", {}).get("value")
-        prev = rels[i + 1]["release"] if i + 1 < len(rels) else None
-        compare = f"[against {escape(prev)}](compare/{prev}-to-{r['release']}.md)" if prev else ""
+        a = r.analysis
+        main, auc = a.overall.get(headline_key), a.overall.get("roc_auc")
+        prev = rels[i + 1].release if i + 1 < len(rels) else None
+        compare = f"[against {escape(prev)}](compare/{prev}-to-{r.release}.md)" if prev else ""
         lines.append(
-            f"| [{escape(r['release'])}]({r['release']}/index.md) | {escape(a['created'])} | "
-            f"{count(a['provenance']['rows'])} | {rate(err)} | {rate(auc)} | "
-            f"{a['summary']['weak_regions']} | {compare} |"
+            f"| [{escape(r.release)}]({r.release}/index.md) | {escape(a.created)} | "
+            f"{count(a.provenance.rows)} | {rate(main and main.value)} | "
+            f"{rate(auc and auc.value)} | {a.summary.weak_regions} | {compare} |"
         )
     return "\n".join(lines) + "\n"
 
@@ -168,34 +169,32 @@ def _build_into(
         say(f"step 1 of 3: pages of model {k} of {len(models)} ({model})")
         rels = list_releases(archive, model)
         for r in rels:
-            refuse_changed(r["folder"])
+            refuse_changed(r.folder)
         if not rels:
             continue
         log.info("building pages of model %s (%d releases)", model, len(rels))
         _write(docs / model / "index.md", _history_page(model, rels))
         section: list[Any] = [{"Release history": f"{model}/index.md"}]
         for i, r in enumerate(rels):
-            page_dir = docs / model / r["release"]
-            text = (r["folder"] / "page.md").read_text(encoding="utf-8")
+            page_dir = docs / model / r.release
+            text = (r.folder / "page.md").read_text(encoding="utf-8")
             if row_ids:
-                text += _row_list(r["folder"], page_dir)
+                text += _row_list(r.folder, page_dir)
             _write(page_dir / "index.md", text)
-            shutil.copytree(r["folder"] / "charts", page_dir / "charts")
-            section.append({f"Release {r['release']}": f"{model}/{r['release']}/index.md"})
+            shutil.copytree(r.folder / "charts", page_dir / "charts")
+            section.append({f"Release {r.release}": f"{model}/{r.release}/index.md"})
             if i + 1 < len(rels):
                 prev = rels[i + 1]
-                d = bundle_diff(prev["folder"], r["folder"])
-                name = f"{prev['release']}-to-{r['release']}.md"
+                d = release_changes(prev.folder, r.folder)
+                name = f"{prev.release}-to-{r.release}.md"
                 _write(docs / model / "compare" / name, diff_markdown(d, heading="#"))
-                section.append(
-                    {f"{r['release']} against {prev['release']}": f"{model}/compare/{name}"}
-                )
+                section.append({f"{r.release} against {prev.release}": f"{model}/compare/{name}"})
         nav.append({model: section})
-        latest = rels[0]["analysis"]
+        latest = rels[0].analysis
         listing.append(
             f"| [{escape(model)}]({model}/index.md) | {len(rels)} | "
-            f"[{escape(latest['release'])}]({model}/{latest['release']}/index.md) | "
-            f"{latest['summary']['weak_regions']} |"
+            f"[{escape(latest.release)}]({model}/{latest.release}/index.md) | "
+            f"{latest.summary.weak_regions} |"
         )
     table = (
         "| model | releases | latest release | weak regions in the latest |\n"
@@ -243,7 +242,7 @@ def _row_list(bundle: Path, page_dir: Path) -> str:
     """Write the ids of the weak regions' rows beside the page; the section that links it."""
     import pandas as pd
 
-    members = pd.read_parquet(bundle / "members.parquet", columns=["id", "weak_regions"])
+    members = read_members(bundle, ["id", "weak_regions"])
     rows = members[members["weak_regions"].map(len) > 0]
     table = pd.DataFrame(
         {
