@@ -109,13 +109,33 @@ def graph_view(
         alt.Tooltip("mean_score_text:N", title="mean score"),
         alt.Tooltip("weak:N", title="weak regions"),
     ]
-    points = (
+    points = _node_points(nodes, base_x, base_y, size, shown, tooltip, extent).add_params(metric)
+    outline = _weak_rings(nodes, base_x, base_y, shown, tooltip)
+    return alt.layer(links, points, outline).properties(
+        width=GRAPH_WIDTH,
+        height=GRAPH_HEIGHT,
+        title=alt.Title(title, subtitle=["dashed magenta rings: nodes in a weak region", *notes]),
+    )
+
+
+def _node_points(
+    nodes: pd.DataFrame,
+    x: alt.X,
+    y: alt.Y,
+    size: alt.Size,
+    shown: dict[str, str],
+    tooltip: list[alt.Tooltip],
+    extent: str,
+) -> alt.Chart:
+    """The nodes, coloured by the selected metric on a scale symmetric about 0 (grey when
+    the metric is not shown)."""
+    return (
         alt.Chart(nodes)
         .transform_calculate(value="datum[colour_by]", **shown)
         .mark_circle(opacity=0.95, stroke=COLOURS["ink"], strokeWidth=0.4, invalid="show")
         .encode(
-            x=base_x,
-            y=base_y,
+            x=x,
+            y=y,
             size=size,
             color=alt.when("datum.value == null")
             .then(alt.value(COLOURS["suppressed"]))
@@ -133,9 +153,14 @@ def graph_view(
             ),
             tooltip=tooltip,
         )
-        .add_params(metric)
     )
-    outline = (
+
+
+def _weak_rings(
+    nodes: pd.DataFrame, x: alt.X, y: alt.Y, shown: dict[str, str], tooltip: list[alt.Tooltip]
+) -> alt.Chart:
+    """Dashed rings round the nodes that belong to a weak region."""
+    return (
         alt.Chart(nodes)
         .transform_calculate(**shown)
         .transform_filter("datum.weak != ''")
@@ -143,16 +168,11 @@ def graph_view(
             shape="circle", filled=False, color=COLOURS["weak"], strokeWidth=2.5, strokeDash=[4, 2]
         )
         .encode(
-            x=base_x,
-            y=base_y,
+            x=x,
+            y=y,
             size=alt.Size("rows:Q", scale=alt.Scale(range=[260, 2200]), legend=None),
             tooltip=tooltip,
         )
-    )
-    return alt.layer(links, points, outline).properties(
-        width=GRAPH_WIDTH,
-        height=GRAPH_HEIGHT,
-        title=alt.Title(title, subtitle=["dashed magenta rings: nodes in a weak region", *notes]),
     )
 
 
