@@ -548,7 +548,7 @@ def run_audit(
         overall=overall,
         graph=rec.GraphSummary(
             settings=graph.settings,
-            invariants=rec.Invariants(**dataclasses.asdict(invariants(graph))),
+            invariants=invariants(graph),
             regions=partition.n_regions,
             grid=grid,
             shape=shape,

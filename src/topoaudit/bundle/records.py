@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 from typing import Any, TypeVar
 
 from topoaudit.errors import BundleError
+from topoaudit.mapper.topology import Invariants
 
 __all__ = [
     "SCHEMA",
@@ -370,20 +371,7 @@ class WeakRegion(Candidate):
 
 
 @record
-class Invariants(_Record):
-    """The shape of a graph in numbers."""
-
-    n_nodes: int
-    n_edges: int
-    n_components: int
-    cycle_rank: int
-    n_leaves: int
-    n_branch_points: int
-    n_isolated: int
-
-
-@record
-class GridPoint(Invariants):
+class GridPoint(Invariants, _Record):
     """The shown graph's invariants at one other cover setting."""
 
     n_intervals: int
