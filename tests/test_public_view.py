@@ -16,8 +16,9 @@ from pathlib import Path
 
 import pytest
 
-from topoaudit.audit.diff import bundle_diff
+from topoaudit.audit.changes import release_changes
 from topoaudit.bundle import MIN_CELL_ROWS, public_graph, public_view
+from topoaudit.bundle.records import Estimate
 from topoaudit.config import parse_config
 from topoaudit.errors import ConfigError
 from topoaudit.report.diff import diff_markdown
@@ -66,12 +67,12 @@ def test_the_view_blanks_every_statistic_of_a_small_cell_and_keeps_its_size():
     a, g = _load("2026.2")
     _plant(a, g, 7)
     view, graph = public_view(a), public_graph(g)
-    assert view["regions"][0]["rows"] == 7
-    assert view["regions"][0]["metrics"]["error_rate"] == {"value": None, "low": None, "high": None}
-    assert view["weak_regions"][0]["description"] is None
-    assert view["weak_regions"][0]["effect"] is None
-    assert view["comparison"]["regions"][0]["before"] is None
-    assert graph["nodes"][0]["loss"] is None and graph["nodes"][0]["rows"] == 7
+    assert view.regions[0].rows == 7
+    assert view.regions[0].metrics["error_rate"] == Estimate(value=None, low=None, high=None)
+    assert view.weak_regions[0].description is None
+    assert view.weak_regions[0].effect is None
+    assert view.comparison is not None and view.comparison.regions[0].before is None
+    assert graph.nodes[0].loss is None and graph.nodes[0].rows == 7
     assert a["regions"][0]["metrics"]["error_rate"]["value"] == MARK  # input unchanged
 
 
@@ -100,7 +101,7 @@ def test_no_statistic_of_a_small_weak_region_reaches_the_diff(tmp_path):
     a["weak_regions"][0]["confirmation"].update(rows=6, ratio=MARK)
     a["weak_regions"][0]["p_adjusted"] = 0.0123456
     (after / "analysis.json").write_text(json.dumps(a))
-    text = diff_markdown(bundle_diff(before, after))
+    text = diff_markdown(release_changes(before, after))
     assert _leaks(text) == []
     assert "1.2e-02" not in text
     assert f"statistics not shown (fewer than {MIN_CELL_ROWS} rows)" in text

@@ -172,11 +172,23 @@ def _node(i: int, rows: int, weak: list[str] | None = None, score: float = 0.25)
         "id": i,
         "rows": rows,
         "region": 1 + i % 3,
+        "filter": i / 100,
         "loss": 0.2,
         "expected_loss": score,
         "mean_score": score,
         "positive_rate": 0.2,
         "weak_regions": weak or [],
+    }
+
+
+def _graph(nodes: list[dict], links: list[dict]) -> dict:
+    """A graph.json of these nodes and links (settings as in the fixture)."""
+    settings = json.loads((FIXTURE / "graph.json").read_text(encoding="utf-8"))["settings"]
+    return {
+        "n_rows": sum(n["rows"] for n in nodes),
+        "settings": settings,
+        "nodes": nodes,
+        "links": links,
     }
 
 
@@ -187,10 +199,10 @@ def _graph_spec_nodes(page) -> list[dict]:
 
 def test_a_one_row_node_shows_its_size_but_not_its_score():
     a, _ = _fixture()
-    g = {
-        "nodes": [_node(0, 400, score=0.2), _node(1, 1, score=0.87654321)],
-        "links": [{"source": 0, "target": 1, "shared": 1, "jaccard": 0.002}],
-    }
+    g = _graph(
+        [_node(0, 400, score=0.2), _node(1, 1, score=0.87654321)],
+        [{"source": 0, "target": 1, "shared": 1, "jaccard": 0.002}],
+    )
     page = build_page(a, g)
     text = json.dumps(page.charts["graph"])
     assert "0.876543" not in text and "0.87654" not in page.markdown
@@ -207,7 +219,7 @@ def _big_graph(n: int, weak: set[int]) -> dict:
     links = [{"source": i, "target": i + 1, "shared": 1, "jaccard": 0.1} for i in range(n - 1)]
     links += [{"source": i, "target": (i * 7) % n, "shared": 1, "jaccard": 0.1} for i in range(n)]
     links = [e for e in links if e["source"] != e["target"]]
-    return {"nodes": nodes, "links": links}
+    return _graph(nodes, links)
 
 
 def test_the_graph_view_draws_at_most_the_limit_and_says_so(monkeypatch):

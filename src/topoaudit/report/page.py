@@ -31,18 +31,32 @@ many of how many are drawn.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import networkx as nx
 import numpy as np
 import pandas as pd
 
 from topoaudit import limits
+from topoaudit.audit.tasks import Task, task_named
 from topoaudit.bundle import MIN_CELL_ROWS, public_graph, public_view
+from topoaudit.bundle.files import canonical_json, read_analysis, read_graph
+from topoaudit.bundle.records import (
+    Analysis,
+    Description,
+    GraphDocument,
+    HalfEstimate,
+    LocalModelTest,
+    Node,
+    ShapeFeatureRecord,
+    ShapeRecord,
+    WeakRegion,
+)
 from topoaudit.report import views
 from topoaudit.report.text import (
     code_fence,
@@ -78,13 +92,34 @@ STANDING_CAUTIONS = (
     "organisation's model-risk policy and the regulation that applies require.",
 )
 
+#: the charts of a page, name -> Vega-Lite spec; each section adds its own
+Charts = dict[str, dict[str, Any]]
+
+#: a graph as the layout helpers take it: a record, or the parsed graph.json
+G = TypeVar("G", GraphDocument, dict[str, Any])
+
 
 @dataclass(frozen=True)
 class Page:
     """The Markdown text of a page and its charts (name -> Vega-Lite spec)."""
 
     markdown: str
-    charts: dict[str, dict[str, Any]]
+    charts: Charts
+
+
+# -- the graph view: layout and the nodes drawn ---------------------------------------------
+
+
+def _parts(graph: GraphDocument | dict[str, Any]) -> tuple[list[Any], list[Any]]:
+    """The nodes and links of a graph record or of a parsed graph.json."""
+    if isinstance(graph, GraphDocument):
+        return list(graph.nodes), list(graph.links)
+    return graph["nodes"], graph["links"]
+
+
+def _field(item: Any, name: str) -> Any:
+    """A field of a node or link, given as a record or as parsed JSON."""
+    return item.get(name) if isinstance(item, dict) else getattr(item, name)
 
 
 def _component_positions(g: nx.Graph, nodes: list[Any], seed: int) -> dict[Any, np.ndarray]:
@@ -114,15 +149,17 @@ def _component_positions(g: nx.Graph, nodes: list[Any], seed: int) -> dict[Any, 
     return {v: xy[i] for i, v in enumerate(nodes)}
 
 
-def node_layout(graph: dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
+def node_layout(graph: GraphDocument | dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
     """Node positions: each connected component laid out on its own (see
     :func:`_component_positions`), scaled by the square root of its node count, and the
     components packed side by side in rows, largest (by rows) first. Deterministic; the
-    coordinates are rounded so the spec is stable."""
+    coordinates are rounded so the spec is stable. ``graph`` is a graph record or the
+    parsed graph.json."""
+    nodes, links = _parts(graph)
     g = nx.Graph()
-    for n in graph["nodes"]:
-        g.add_node(n["id"], rows=n["rows"], filter=n.get("filter"))
-    g.add_edges_from((e["source"], e["target"]) for e in graph["links"])
+    for n in nodes:
+        g.add_node(_field(n, "id"), rows=_field(n, "rows"), filter=_field(n, "filter"))
+    g.add_edges_from((_field(e, "source"), _field(e, "target")) for e in links)
     components = sorted(
         (sorted(c) for c in nx.connected_components(g)),
         key=lambda c: (-sum(g.nodes[v]["rows"] for v in c), len(c) == 1, c[0]),
@@ -154,78 +191,77 @@ def node_layout(graph: dict[str, Any], *, seed: int = 0) -> pd.DataFrame:
     )
 
 
-def drawn_graph(graph: dict[str, Any]) -> dict[str, Any]:
-    """The part of ``graph`` the graph view draws: all of it up to
+def drawn_graph(graph: G) -> G:
+    """The part of ``graph`` (a graph record or the parsed graph.json, returned as the same
+    kind) that the graph view draws: all of it up to
     :data:`topoaudit.limits.MAX_NODES_DRAWN` nodes; past that, the nodes of weak regions
     first, then the others by rows (largest first, ties by id), and the edges between
     drawn nodes."""
-    nodes = graph["nodes"]
+    nodes, links = _parts(graph)
     limit = limits.MAX_NODES_DRAWN
     if len(nodes) <= limit:
         return graph
-    ranked = sorted(nodes, key=lambda n: (not n["weak_regions"], -n["rows"], str(n["id"])))
-    keep = {n["id"] for n in ranked[:limit]}
-    return {
-        **graph,
-        "nodes": [n for n in nodes if n["id"] in keep],
-        "links": [e for e in graph["links"] if e["source"] in keep and e["target"] in keep],
-    }
+    ranked = sorted(
+        nodes,
+        key=lambda n: (not _field(n, "weak_regions"), -_field(n, "rows"), str(_field(n, "id"))),
+    )
+    keep = {_field(n, "id") for n in ranked[:limit]}
+    kept_nodes = [n for n in nodes if _field(n, "id") in keep]
+    kept_links = [e for e in links if _field(e, "source") in keep and _field(e, "target") in keep]
+    if isinstance(graph, GraphDocument):
+        return dataclasses.replace(graph, nodes=tuple(kept_nodes), links=tuple(kept_links))
+    return {**graph, "nodes": kept_nodes, "links": kept_links}
 
 
-def _small(rows: Any) -> bool:
+def _small(rows: int | None) -> bool:
     return rows is None or rows < MIN_CELL_ROWS
 
 
-def _half(h: dict[str, Any], key: str, digits: int = 3) -> str:
+def _half(h: HalfEstimate, value: float | None, digits: int = 3) -> str:
     """A rate of one half of a weak region, unless that half is a small cell."""
-    return "not shown" if _small(h["rows"]) else rate(h[key], digits)
+    return "not shown" if _small(h.rows) else rate(value, digits)
 
 
-def _node_stat(node: dict[str, Any], value: Any) -> float | None:
+def _node_stat(node: Node, value: float | None) -> float | None:
     """A node statistic as drawn: rounded to 3 decimals, left out for small nodes."""
-    if _small(node["rows"]) or value is None or not math.isfinite(float(value)):
+    if _small(node.rows) or value is None or not math.isfinite(float(value)):
         return None
     return round(float(value), 3)
 
 
-def _graph_frames(graph: dict[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _excess(node: Node) -> float | None:
+    """A node's observed loss less the loss its scores promise."""
+    if node.loss is None or node.expected_loss is None:
+        return None
+    return node.loss - node.expected_loss
+
+
+def _graph_frames(graph: GraphDocument) -> tuple[pd.DataFrame, pd.DataFrame]:
     layout = node_layout(graph).set_index("node")
-    shown = graph["nodes"]
+    shown = graph.nodes
     nodes = pd.DataFrame(
         {
-            "node": [n["id"] for n in shown],
-            "rows": [n["rows"] for n in shown],
-            "region": [n["region"] for n in shown],
-            "loss": [_node_stat(n, n["loss"]) for n in shown],
-            "expected_loss": [_node_stat(n, n["expected_loss"]) for n in shown],
-            "excess": [
-                _node_stat(
-                    n,
-                    None
-                    if n["loss"] is None or n["expected_loss"] is None
-                    else n["loss"] - n["expected_loss"],
-                )
-                for n in shown
-            ],
-            "mean_score": [_node_stat(n, n["mean_score"]) for n in shown],
-            "weak": [", ".join(n["weak_regions"]) for n in shown],
+            "node": [n.id for n in shown],
+            "rows": [n.rows for n in shown],
+            "region": [n.region for n in shown],
+            "loss": [_node_stat(n, n.loss) for n in shown],
+            "expected_loss": [_node_stat(n, n.expected_loss) for n in shown],
+            "excess": [_node_stat(n, _excess(n)) for n in shown],
+            "mean_score": [_node_stat(n, n.mean_score) for n in shown],
+            "weak": [", ".join(n.weak_regions) for n in shown],
         }
     )
     nodes["x"] = nodes["node"].map(layout["x"])
     nodes["y"] = nodes["node"].map(layout["y"])
     edges = pd.DataFrame(
         {
-            "x": [layout.loc[e["source"], "x"] for e in graph["links"]],
-            "y": [layout.loc[e["source"], "y"] for e in graph["links"]],
-            "x2": [layout.loc[e["target"], "x"] for e in graph["links"]],
-            "y2": [layout.loc[e["target"], "y"] for e in graph["links"]],
+            "x": [layout.loc[e.source, "x"] for e in graph.links],
+            "y": [layout.loc[e.source, "y"] for e in graph.links],
+            "x2": [layout.loc[e.target, "x"] for e in graph.links],
+            "y2": [layout.loc[e.target, "y"] for e in graph.links],
         }
     )
     return nodes, edges
-
-
-def _headline(task: str) -> tuple[str, str]:
-    return ("error_rate", "error rate") if task == "binary" else ("mae", "mean absolute error")
 
 
 def _chart_block(name: str, spec: dict[str, Any], alt_text: str) -> str:
@@ -237,45 +273,137 @@ def _chart_block(name: str, spec: dict[str, Any], alt_text: str) -> str:
     )
 
 
-def _cautions(a: dict[str, Any]) -> list[str]:
-    out = []
-    min_rows = a["config"]["audit"]["min_rows"]
-    for w in a["weak_regions"]:
-        conf = w["confirmation"]
-        width = w.get("error_interval_points")
-        if width is not None and (conf["rows"] < 4 * min_rows or width > 15):
-            out.append(
-                f"Weak region {w['id']} has {count(conf['rows'])} rows in the confirmation "
-                f"half; its error-rate interval spans {width:.0f} points."
-            )
-        if w.get("stability") is not None and w["stability"] < 0.5:
-            out.append(
-                f"Weak region {w['id']} was found again in only {w['stability'] * 100:.0f}% of "
-                "reruns with other settings or samples: treat it as a lead, not a finding."
-            )
-    untested = a["summary"]["candidates_untested"]
-    if untested:
-        out.append(
-            f"{plural(untested, 'candidate region')} had fewer than {min_rows} confirmation rows "
-            "and were not tested; they are neither confirmed nor cleared."
+# -- the page, section by section ----------------------------------------------------------
+
+
+def build_page(a: Analysis | dict[str, Any], graph: GraphDocument | dict[str, Any]) -> Page:
+    """Build the page of analysis ``a`` (a record, or the parsed analysis.json) and its
+    graph (a record, or the parsed graph.json) from their public view: no statistic of a
+    cell of fewer than ``MIN_CELL_ROWS`` rows reaches the page."""
+    view, shown = public_view(a), public_graph(graph)
+    task = task_named(view.task)
+    charts: Charts = {}
+    lines = [
+        *_title_section(view, task),
+        *_weak_regions_section(view),
+        *_graph_section(view, shown, charts),
+        *_shape_section(view),
+        *_regions_section(view, task, charts),
+        *_calibration_section(view, task, charts),
+        *_stability_section(view, charts),
+        *_local_models_section(view, charts),
+        *_comparison_section(view, charts),
+        *_cautions_section(view),
+        *_reproduce_section(view),
+    ]
+    return Page("\n".join(lines), charts)
+
+
+def _title_section(a: Analysis, task: Task) -> list[str]:
+    """The title, one sentence of what was found, and the at-a-glance table."""
+    model, release = escape(a.model), escape(a.release)
+    prov = a.provenance
+    lines = [
+        f"# {model}, release {release}",
+        "",
+        f"Audit of {count(prov.rows)} validation rows, {a.created}. "
+        f"{plural(a.summary.weak_regions, 'weak region')} confirmed out of "
+        f"{plural(a.summary.candidates_tested, 'candidate')} tested.",
+        "",
+        "## At a glance",
+        "",
+        "| | |",
+        "|---|---|",
+        f"| model | {model} |",
+        f"| release | {release} (score column {escape(prov.score_column)}"
+        + (f", threshold {prov.threshold}" if task.has_threshold else "")
+        + ") |",
+        f"| rows | {count(prov.rows)} (discovery {count(prov.discovery_rows)}, "
+        f"confirmation {count(prov.confirmation_rows)}) |",
+        f"| data fingerprint | `{prov.fingerprint}` |",
+    ]
+    for metric, name in task.page_metrics:
+        est = a.overall[metric]
+        interval = (
+            f" (95% interval {rate(est.low)} to {rate(est.high)})" if est.low is not None else ""
         )
-    for r in a["regions"]:
-        if _small(r["rows"]):
-            out.append(
-                f"Region {r['id']} has only {count(r['rows'])} rows; its metrics are not "
-                f"shown (fewer than {MIN_CELL_ROWS} rows)."
-            )
-        elif r["rows"] < min_rows:
-            out.append(
-                f"Region {r['id']} has only {count(r['rows'])} rows; its metrics are fragile."
-            )
-    dropped = a["provenance"]["rows_dropped"]
-    if dropped:
-        out.append(f"{count(dropped)} rows with missing values were dropped before the audit.")
-    return out
+        lines.append(f"| {name} | {rate(est.value)}{interval} |")
+    lines += [f"| weak regions confirmed | {a.summary.weak_regions} |", ""]
+    return lines
 
 
-def _description(desc: dict[str, Any]) -> list[str]:
+def _weak_regions_section(a: Analysis) -> list[str]:
+    """Where it falls short: each confirmed weak region, or why there is none."""
+    lines = ["## Where it falls short", ""]
+    if not a.weak_regions:
+        lines += [
+            "No weak region was confirmed: no candidate region found on the discovery half "
+            "showed, on the confirmation half, more errors than the release's own scores "
+            f"promise, at a false discovery rate of {a.config['audit']['fdr']}.",
+            "",
+        ]
+    for w in a.weak_regions:
+        lines += _weak_region(w)
+    return lines
+
+
+def _weak_region(w: WeakRegion) -> list[str]:
+    """One weak region: where it was found, its two halves, its test, who is in it, its
+    local model and its stability."""
+    d, c = w.discovery, w.confirmation
+    lines = [
+        f"### {w.id}: {count(w.rows)} rows ({w.share_of_rows * 100:.1f}% of all), "
+        f"{escape(w.kind.replace('_', ' '))}s",
+        "",
+        f"Found in the {escape(w.graph.replace('_', '-'))} graph"
+        + (f", and again in {', '.join(escape(x) for x in w.also_found)}" if w.also_found else "")
+        + ".",
+        "",
+        *_on_feature(w),
+        "| | discovery half | confirmation half |",
+        "|---|---|---|",
+        f"| rows | {count(d.rows)} | {count(c.rows)} |",
+        f"| observed rate | {_half(d, d.observed_rate)} | {_half(c, c.observed_rate)} |",
+        f"| rate the scores promise | {_half(d, d.expected_rate)} | {_half(c, c.expected_rate)} |",
+        f"| observed / promised | {_half(d, d.ratio, 2)} | {_half(c, c.ratio, 2)} |",
+        "",
+    ]
+    excess = "not shown" if _small(c.rows) else f"{signed(w.effect)} per row"
+    lines += [
+        f"Excess on the confirmation half: {excess}; one-sided p-value "
+        f"{pvalue(w.p_value)}, adjusted (Benjamini–Hochberg) {pvalue(w.p_adjusted)}.",
+        "",
+    ]
+    if _small(w.rows):
+        lines += [f"Who is in it: {NOT_SHOWN}.", ""]
+    elif w.description is not None:
+        lines += _description(w.description)
+    lines.append(_local_model_sentence(w.local_model))
+    stability = (
+        f"found again in {w.stability * 100:.0f}% of reruns."
+        if w.stability is not None
+        else "not rerun."
+    )
+    lines += ["", "Stability: " + stability, ""]
+    return lines
+
+
+def _on_feature(w: WeakRegion) -> list[str]:
+    place = w.on_feature
+    if not place:
+        return []
+    if place.at_tip:
+        where = f"at the tip of {place.feature}"
+    else:
+        where = f"{'in' if place.kind == 'component' else 'on'} {place.feature}"
+    return [
+        f"It lies {where}: {place.share * 100:.0f}% of its rows are in that feature of "
+        "the shape (see the shape of the data).",
+        "",
+    ]
+
+
+def _description(desc: Description) -> list[str]:
     """Who is in a weak region: feature contrasts, categories and the surrogate rule."""
     lines = [
         "Who is in it (largest standardised mean differences against the other rows):",
@@ -283,32 +411,178 @@ def _description(desc: dict[str, Any]) -> list[str]:
         "| feature | mean inside | mean outside | standardised difference |",
         "|---|---|---|---|",
     ]
-    for fc in desc["contrasts"]:
+    for fc in desc.contrasts:
         lines.append(
-            f"| {escape(fc['feature'])} | {rate(fc['region_mean'])} | "
-            f"{rate(fc['rest_mean'])} | {signed(fc['smd'], 2)} |"
+            f"| {escape(fc.feature)} | {rate(fc.region_mean)} | "
+            f"{rate(fc.rest_mean)} | {signed(fc.smd, 2)} |"
         )
     lines.append("")
-    if desc["categories"]:
+    if desc.categories:
         lines.append(
             "Over-represented categories: "
             + "; ".join(
-                f"{escape(cc['feature'])} = {escape(cc['category'])} "
-                f"({cc['region_share'] * 100:.0f}% inside, {cc['rest_share'] * 100:.0f}% "
+                f"{escape(cc.feature)} = {escape(cc.category)} "
+                f"({cc.region_share * 100:.0f}% inside, {cc.rest_share * 100:.0f}% "
                 "outside)"
-                for cc in desc["categories"]
+                for cc in desc.categories
             )
             + "."
         )
         lines.append("")
-    rule = desc["rule"]
+    rule = desc.rule
     lines += [
-        f"Approximate rule (a depth-{rule['depth']} surrogate tree, an approximation of "
-        f"the region): {escape(rule['text'])}; precision {rate(rule['precision'], 2)}, "
-        f"recall {rate(rule['recall'], 2)}.",
+        f"Approximate rule (a depth-{rule.depth} surrogate tree, an approximation of "
+        f"the region): {escape(rule.text)}; precision {rate(rule.precision, 2)}, "
+        f"recall {rate(rule.recall, 2)}.",
         "",
     ]
     return lines
+
+
+def _local_model_sentence(lm: LocalModelTest) -> str:
+    if lm.verdict == "too small to try":
+        return "Local model: the region is too small to try one."
+    return (
+        f"Local model ({escape(lm.model)}, {lm.folds}-fold): held-out loss "
+        f"{rate(lm.local_loss)} against the release's {rate(lm.release_loss)}; "
+        f"difference {signed(lm.difference)} (95% interval {signed(lm.low)} to "
+        f"{signed(lm.high)}): **{escape(lm.verdict)}**."
+    )
+
+
+def _graph_section(a: Analysis, graph: GraphDocument, charts: Charts) -> list[str]:
+    """The shape of the data: the graph's invariants in words, and the graph view."""
+    drawn = drawn_graph(graph)
+    n_drawn, n_all = len(drawn.nodes), len(graph.nodes)
+    nodes, edges = _graph_frames(drawn)
+    notes = []
+    if n_drawn < n_all:
+        notes.append(
+            f"showing {count(n_drawn)} of {count(n_all)} nodes: those of weak regions, "
+            "then the largest"
+        )
+    n_small = sum(_small(n.rows) for n in drawn.nodes)
+    if n_small:
+        notes.append(f"grey: nodes of fewer than {MIN_CELL_ROWS} rows, statistics not shown")
+    charts["graph"] = views.graph_view(
+        nodes, edges, title="The shape of the validation data (Mapper graph)", notes=notes
+    ).to_dict()
+    inv = a.graph.invariants
+    lines = [
+        "## The shape of the data",
+        "",
+        f"{plural(inv.n_nodes, 'node')}, {plural(inv.n_edges, 'edge')}, "
+        f"{plural(inv.n_components, 'connected component')}, cycle rank "
+        f"{inv.cycle_rank}, {plural(inv.n_leaves, 'leaf', 'leaves')}, "
+        f"{plural(inv.n_branch_points, 'branch point')}. Node size shows rows; colour shows the "
+        "metric picked in the selector. Weak regions were searched for on separate search "
+        "graphs (see how to reproduce); here a node is ringed when at least half of its "
+        "rows belong to a weak region.",
+        "",
+    ]
+    if n_drawn < n_all:
+        lines += [
+            f"**The drawing shows {count(n_drawn)} of {count(n_all)} nodes**: every node of a "
+            "weak region and, of the others, the largest by rows, with the edges between "
+            f"drawn nodes ({count(len(drawn.links))} of {count(len(graph.links))} "
+            f"edges); the other {count(n_all - n_drawn)}, the smallest outside weak regions, "
+            "are left out. The counts above are of the whole graph.",
+            "",
+        ]
+    if n_small:
+        lines += [
+            f"{plural(n_small, 'node')} "
+            + ("holds" if n_small == 1 else "hold")
+            + f" fewer than {MIN_CELL_ROWS} rows: "
+            + ("it is" if n_small == 1 else "they are")
+            + " drawn grey, without rates or mean score, so that no row's own values show.",
+            "",
+        ]
+    lines.append(_chart_block("graph", charts["graph"], "Mapper graph of the validation data"))
+    return lines
+
+
+def _shape_section(a: Analysis) -> list[str]:
+    """The features of the shape: what the graph shows and how sure each feature is."""
+    shape = a.graph.shape
+    lines = [
+        "### Features of the shape",
+        "",
+        _settings_sentence(shape, a.config, a.provenance.rows),
+        "",
+    ]
+    if shape.two_d:
+        return [
+            *lines,
+            "The filter has two dimensions: the cover's grid of intervals draws loops of its "
+            "own, so the graph's components, loops and flares are not listed or scored. Use "
+            "a one-dimensional filter to have them.",
+            "",
+        ]
+    n = shape.resamples
+    if n:
+        lines += [
+            f"How sure: each feature was checked on {plural(n, 'resample')} of "
+            f"{count(shape.resample_rows)} rows drawn without replacement, the settings "
+            "chosen again on each. A feature's confidence is the share of resamples whose "
+            "graph lies closer to this one than half the feature's extent along the filter "
+            "(bottleneck distance between extended persistence diagrams, after Carrière, "
+            "Michel and Oudot, 2018): in those the feature is still there. Below 95%, "
+            "treat it as possibly an accident of the sample.",
+            "",
+        ]
+    else:
+        lines += ["No resamples were drawn: the features below carry no confidence.", ""]
+    lines += _feature_table(shape.features, resampled=bool(n))
+    lines += [
+        "",
+        "A loop's columns are those that change most from node to node round it (the share "
+        "of their variance between nodes); a flare's, those that change most from where it "
+        "joins the rest to its tip, and a separate group's, those that differ most from all "
+        "other rows (standardised mean differences, in brackets).",
+        "",
+    ]
+    return lines
+
+
+def _feature_table(features: tuple[ShapeFeatureRecord, ...], *, resampled: bool) -> list[str]:
+    """One row per feature of the shape, and a note on narrow groups of low confidence."""
+    lines = [
+        "| feature | rows | filter range | what sets it apart | how sure |",
+        "|---|---|---|---|---|",
+    ]
+    for f in features:
+        conf = "n/a" if f.confidence is None else f"{f.confidence * 100:.0f}%"
+        where = "" if f.main else _feature_where(f)
+        lines.append(
+            f"| {f.name} | {count(f.rows)} | {f.filter_low:.2f} to "
+            f"{f.filter_high:.2f} | {where} | {conf} |"
+        )
+    narrow = [
+        f.name
+        for f in features
+        if f.kind == "component" and not f.main and (f.confidence or 0) < 0.95
+    ]
+    if narrow and resampled:
+        lines += [
+            "",
+            f"The confidence of {_join(narrow)} is low: it measures a feature's extent along "
+            "the filter, and a group narrow along the filter scores low even when it lies "
+            "far from the other rows in other columns (see what sets it apart).",
+        ]
+    return lines
+
+
+def _feature_where(f: ShapeFeatureRecord) -> str:
+    if f.kind == "loop":
+        cols = ", ".join(escape(c.column) for c in f.columns)
+        return f"goes round in {cols}" if cols else ""
+    return ", ".join(f"{escape(c.column)} {c.direction} ({signed(c.smd, 1)})" for c in f.columns)
+
+
+def _join(names: list[str]) -> str:
+    """``"a"``, ``"a and b"``, ``"a, b and c"``."""
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
 def _farthest(quantile: float) -> str:
@@ -317,19 +591,20 @@ def _farthest(quantile: float) -> str:
     return f"all but the farthest {(1 - quantile) * 100:.0f}%"
 
 
-def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int) -> str:
+def _settings_sentence(shape: ShapeRecord, config: dict[str, Any], rows: int) -> str:
     """How the shown graph's settings came about, in words."""
-    k, g = shape["n_intervals"][0], shape["overlap"][0]
-    chosen = shape.get("chosen")
-    sampled = bool(chosen) and chosen["sample_rows"] < rows
+    k, g = shape.n_intervals[0], shape.overlap[0]
+    chosen = shape.chosen
     cover = f"{plural(k, 'interval')} overlapping by {g * 100:.0f}%"
     if not chosen:
         return f"The graph's settings were given in the configuration: {cover}."
+    sampled = chosen["sample_rows"] < rows
     given = config["graph"]
+    quantile = chosen.get("quantile", 1.0)
     parts = [
         "The graph's settings were chosen from the data by the rule of Carrière, Michel and "
         f"Oudot (2018): a neighbourhood scale of {chosen['scale']:.3g} (how far "
-        + _farthest(chosen.get("quantile", 1.0))
+        + _farthest(quantile)
         + f" of {count(chosen['sample_rows'])} rows"
         + (", a seeded sample of all rows," if sampled else "")
         + f" lie from the nearest of {count(chosen['subsample_rows'])} of them drawn at "
@@ -338,11 +613,7 @@ def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int)
     if given["n_intervals"] == "auto":
         parts.append(
             f"an interval length of {chosen['interval_length'][0]:.3g}: the filter's "
-            + (
-                "largest"
-                if chosen.get("quantile", 1.0) >= 1
-                else f"{chosen['quantile'] * 100:g}th-percentile"
-            )
+            + ("largest" if quantile >= 1 else f"{quantile * 100:g}th-percentile")
             + f" change between rows within that scale ({chosen['filter_spread'][0]:.3g}) "
             f"divided by the overlap {chosen['gain'][0]:g}"
         )
@@ -360,449 +631,241 @@ def _settings_sentence(shape: dict[str, Any], config: dict[str, Any], rows: int)
     return text
 
 
-def _feature_where(f: dict[str, Any]) -> str:
-    if f["kind"] == "loop":
-        cols = ", ".join(escape(c["column"]) for c in f["columns"])
-        return f"goes round in {cols}" if cols else ""
-    return ", ".join(
-        f"{escape(c['column'])} {c['direction']} ({signed(c['smd'], 1)})" for c in f["columns"]
+def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
+    """The regions of the partition: the headline metric by region, chart and table."""
+    key, label = task.headline
+    shown = [r for r in a.regions if not _small(r.rows)]
+    reg = pd.DataFrame(
+        {
+            "region": [f"region {r.id}" for r in shown],
+            "value": [r.metrics[key].value for r in shown],
+            "low": [r.metrics[key].low for r in shown],
+            "high": [r.metrics[key].high for r in shown],
+        }
     )
-
-
-def _shape_section(a: dict[str, Any]) -> list[str]:
-    """The features of the shape: what the graph shows and how sure each feature is."""
-    shape = a["graph"].get("shape")
-    if not shape:
-        return []
-    rows = a["provenance"]["rows"]
-    lines = ["### Features of the shape", "", _settings_sentence(shape, a["config"], rows), ""]
-    if shape.get("two_d"):
-        return [
-            *lines,
-            "The filter has two dimensions: the cover's grid of intervals draws loops of its "
-            "own, so the graph's components, loops and flares are not listed or scored. Use "
-            "a one-dimensional filter to have them.",
-            "",
-        ]
-    n = shape["resamples"]
-    if n:
-        lines += [
-            f"How sure: each feature was checked on {plural(n, 'resample')} of "
-            f"{count(shape['resample_rows'])} rows drawn without replacement, the settings "
-            "chosen again on each. A feature's confidence is the share of resamples whose "
-            "graph lies closer to this one than half the feature's extent along the filter "
-            "(bottleneck distance between extended persistence diagrams, after Carrière, "
-            "Michel and Oudot, 2018): in those the feature is still there. Below 95%, "
-            "treat it as possibly an accident of the sample.",
-            "",
-        ]
-    else:
-        lines += ["No resamples were drawn: the features below carry no confidence.", ""]
-    lines += [
-        "| feature | rows | filter range | what sets it apart | how sure |",
-        "|---|---|---|---|---|",
-    ]
-    for f in shape["features"]:
-        conf = "n/a" if f["confidence"] is None else f"{f['confidence'] * 100:.0f}%"
-        where = "" if f["main"] else _feature_where(f)
-        lines.append(
-            f"| {f['name']} | {count(f['rows'])} | {f['filter_low']:.2f} to "
-            f"{f['filter_high']:.2f} | {where} | {conf} |"
-        )
-    narrow = [
-        f["name"]
-        for f in shape["features"]
-        if f["kind"] == "component" and not f["main"] and (f["confidence"] or 0) < 0.95
-    ]
-    if narrow and n:
-        lines += [
-            "",
-            f"The confidence of {_join(narrow)} is low: it measures a feature's extent along "
-            "the filter, and a group narrow along the filter scores low even when it lies "
-            "far from the other rows in other columns (see what sets it apart).",
-        ]
-    lines += [
+    if task.interval_metric is None:
+        # the regions of this task carry no interval: the chart draws the value alone
+        reg["low"], reg["high"] = reg["value"], reg["value"]
+    lines = [
+        "## Regions",
         "",
-        "A loop's columns are those that change most from node to node round it (the share "
-        "of their variance between nodes); a flare's, those that change most from where it "
-        "joins the rest to its tip, and a separate group's, those that differ most from all "
-        "other rows (standardised mean differences, in brackets).",
+        f"The graph is partitioned into {a.summary.regions} regions (Louvain "
+        "communities); "
+        "every row has one home region and the table adds up to the whole data set.",
+        "",
+    ]
+    if len(shown) < len(a.regions):
+        lines += [f"Regions of fewer than {MIN_CELL_ROWS} rows show their size only.", ""]
+    overall = a.overall[key]
+    if shown:
+        charts["regions"] = views.region_error_view(
+            reg, overall=overall.value, metric_title=label
+        ).to_dict()
+        lines.append(_chart_block("regions", charts["regions"], f"{label} by region"))
+    lines += [f"| region | rows | nodes | {label} | 95% interval |", "|---|---|---|---|---|"]
+    for r in a.regions:
+        est = r.metrics[key]
+        cells = (
+            f"{NOT_SHOWN} | "
+            if _small(r.rows)
+            else f"{rate(est.value)} | {rate(est.low)} to {rate(est.high)}"
+        )
+        lines.append(f"| {r.id} | {count(r.rows)} | {r.nodes} | {cells} |")
+    lines += [
+        f"| all | {count(a.provenance.rows)} | {a.graph.invariants.n_nodes} | "
+        f"{rate(overall.value)} | {rate(overall.low)} to {rate(overall.high)} |",
         "",
     ]
     return lines
 
 
-def _join(names: list[str]) -> str:
-    """``"a"``, ``"a and b"``, ``"a, b and c"``."""
-    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
-
-
-def _on_feature(w: dict[str, Any]) -> list[str]:
-    place = w.get("on_feature")
-    if not place:
+def _calibration_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
+    """The calibration curves by region, for a task whose regions have score bins."""
+    if not task.counts:
         return []
-    if place["at_tip"]:
-        where = f"at the tip of {place['feature']}"
-    else:
-        where = f"{'in' if place['kind'] == 'component' else 'on'} {place['feature']}"
-    return [
-        f"It lies {where}: {place['share'] * 100:.0f}% of its rows are in that feature of "
-        "the shape (see the shape of the data).",
-        "",
-    ]
+    all_bins = [(r, b) for r in a.regions for b in r.calibration or ()]
+    bins = pd.DataFrame(
+        [{"region": f"region {r.id}", **b.to_dict()} for r, b in all_bins if not _small(b.rows)]
+    )
+    lines = []
+    if len(bins) < len(all_bins):
+        lines += [
+            f"Score bins of fewer than {MIN_CELL_ROWS} rows are left out of the "
+            "calibration curves.",
+            "",
+        ]
+    if not bins.empty:
+        charts["calibration"] = views.calibration_view(bins).to_dict()
+        lines += [
+            _chart_block("calibration", charts["calibration"], "calibration curves by region"),
+            "",
+        ]
+    return lines
 
 
-def build_page(a: dict[str, Any], graph: dict[str, Any]) -> Page:
-    """Build the page of analysis ``a`` (the parsed analysis.json) from its public view:
-    no statistic of a cell of fewer than ``MIN_CELL_ROWS`` rows reaches the page."""
-    a, graph = public_view(a), public_graph(graph)
-    key, label = _headline(a["task"])
-    charts: dict[str, dict[str, Any]] = {}
-    lines: list[str] = []
-    model, release = escape(a["model"]), escape(a["release"])
-    prov = a["provenance"]
-    o = a["overall"]
-    lines += [f"# {model}, release {release}", ""]
-    lines += [
-        f"Audit of {count(prov['rows'])} validation rows, {a['created']}. "
-        f"{plural(a['summary']['weak_regions'], 'weak region')} confirmed out of "
-        f"{plural(a['summary']['candidates_tested'], 'candidate')} tested.",
-        "",
-        "## At a glance",
-        "",
-        "| | |",
-        "|---|---|",
-        f"| model | {model} |",
-        f"| release | {release} (score column {escape(prov['score_column'])}"
-        + (f", threshold {prov['threshold']}" if a["task"] == "binary" else "")
-        + ") |",
-        f"| rows | {count(prov['rows'])} (discovery {count(prov['discovery_rows'])}, "
-        f"confirmation {count(prov['confirmation_rows'])}) |",
-        f"| data fingerprint | `{prov['fingerprint']}` |",
-    ]
-    for m, name in (
+def _stability_section(a: Analysis, charts: Charts) -> list[str]:
+    """Whether each weak region is found again under other settings and samples."""
+    if not (a.weak_regions and a.stability.runs):
+        return []
+    runs = pd.DataFrame(
         [
-            ("error_rate", "error rate"),
-            ("false_positive_rate", "false positive rate"),
-            ("false_negative_rate", "false negative rate"),
-            ("roc_auc", "ROC AUC"),
-            ("brier", "Brier score"),
-            ("ece", "expected calibration error"),
+            {"run": r.label, "region": wid, "found": "found again" if f else "not found"}
+            for r in a.stability.runs
+            for wid, f in r.found.items()
         ]
-        if a["task"] == "binary"
-        else [
-            ("mae", "mean absolute error"),
-            ("rmse", "RMSE"),
-            ("bias", "mean residual"),
-            ("r2", "R²"),
-        ]
-    ):
-        est = o[m]
-        interval = (
-            f" (95% interval {rate(est['low'])} to {rate(est['high'])})"
-            if est["low"] is not None
-            else ""
-        )
-        lines.append(f"| {name} | {rate(est['value'])}{interval} |")
-    lines.append(f"| weak regions confirmed | {a['summary']['weak_regions']} |")
-    lines.append("")
-
-    lines += ["## Where it falls short", ""]
-    if not a["weak_regions"]:
-        lines += [
-            "No weak region was confirmed: no candidate region found on the discovery half "
-            "showed, on the confirmation half, more errors than the release's own scores "
-            f"promise, at a false discovery rate of {a['config']['audit']['fdr']}.",
-            "",
-        ]
-    for w in a["weak_regions"]:
-        d, c = w["discovery"], w["confirmation"]
-        desc = w["description"]
-        lines += [
-            f"### {w['id']}: {count(w['rows'])} rows ({w['share_of_rows'] * 100:.1f}% of all), "
-            f"{escape(w['kind'].replace('_', ' '))}s",
-            "",
-            f"Found in the {escape(w['graph'].replace('_', '-'))} graph"
-            + (
-                f", and again in {', '.join(escape(x) for x in w['also_found'])}"
-                if w["also_found"]
-                else ""
-            )
-            + ".",
-            "",
-            *_on_feature(w),
-            "| | discovery half | confirmation half |",
-            "|---|---|---|",
-            f"| rows | {count(d['rows'])} | {count(c['rows'])} |",
-            f"| observed rate | {_half(d, 'observed_rate')} | {_half(c, 'observed_rate')} |",
-            f"| rate the scores promise | {_half(d, 'expected_rate')} | "
-            f"{_half(c, 'expected_rate')} |",
-            f"| observed / promised | {_half(d, 'ratio', 2)} | {_half(c, 'ratio', 2)} |",
-            "",
-        ]
-        excess = "not shown" if _small(c["rows"]) else f"{signed(w['effect'])} per row"
-        lines += [
-            f"Excess on the confirmation half: {excess}; one-sided p-value "
-            f"{pvalue(w['p_value'])}, adjusted (Benjamini–Hochberg) {pvalue(w['p_adjusted'])}.",
-            "",
-        ]
-        if _small(w["rows"]):
-            lines += [f"Who is in it: {NOT_SHOWN}.", ""]
-        else:
-            lines += _description(desc)
-        lm = w["local_model"]
-        if lm["verdict"] == "too small to try":
-            lines.append("Local model: the region is too small to try one.")
-        else:
-            lines.append(
-                f"Local model ({escape(lm['model'])}, {lm['folds']}-fold): held-out loss "
-                f"{rate(lm['local_loss'])} against the release's {rate(lm['release_loss'])}; "
-                f"difference {signed(lm['difference'])} (95% interval {signed(lm['low'])} to "
-                f"{signed(lm['high'])}): **{escape(lm['verdict'])}**."
-            )
-        stab = w.get("stability")
-        lines += [
-            "",
-            "Stability: "
-            + (
-                f"found again in {stab * 100:.0f}% of reruns." if stab is not None else "not rerun."
-            ),
-            "",
-        ]
-
-    drawn = drawn_graph(graph)
-    n_drawn, n_all = len(drawn["nodes"]), len(graph["nodes"])
-    nodes, edges = _graph_frames(drawn)
-    notes = []
-    if n_drawn < n_all:
-        notes.append(
-            f"showing {count(n_drawn)} of {count(n_all)} nodes: those of weak regions, "
-            "then the largest"
-        )
-    n_small = sum(_small(n["rows"]) for n in drawn["nodes"])
-    if n_small:
-        notes.append(f"grey: nodes of fewer than {MIN_CELL_ROWS} rows, statistics not shown")
-    gchart = views.graph_view(
-        nodes, edges, title="The shape of the validation data (Mapper graph)", notes=notes
-    ).to_dict()
-    charts["graph"] = gchart
-    inv = a["graph"]["invariants"]
-    lines += [
-        "## The shape of the data",
+    )
+    charts["stability"] = views.stability_view(runs).to_dict()
+    return [
+        "## Stability",
         "",
-        f"{plural(inv['n_nodes'], 'node')}, {plural(inv['n_edges'], 'edge')}, "
-        f"{plural(inv['n_components'], 'connected component')}, cycle rank "
-        f"{inv['cycle_rank']}, {plural(inv['n_leaves'], 'leaf', 'leaves')}, "
-        f"{plural(inv['n_branch_points'], 'branch point')}. Node size shows rows; colour shows the "
-        "metric picked in the selector. Weak regions were searched for on separate search "
-        "graphs (see how to reproduce); here a node is ringed when at least half of its "
-        "rows belong to a weak region.",
+        _chart_block("stability", charts["stability"], "stability of weak regions"),
         "",
     ]
-    if n_drawn < n_all:
-        lines += [
-            f"**The drawing shows {count(n_drawn)} of {count(n_all)} nodes**: every node of a "
-            "weak region and, of the others, the largest by rows, with the edges between "
-            f"drawn nodes ({count(len(drawn['links']))} of {count(len(graph['links']))} "
-            f"edges); the other {count(n_all - n_drawn)}, the smallest outside weak regions, "
-            "are left out. The counts above are of the whole graph.",
-            "",
-        ]
-    if n_small:
-        lines += [
-            f"{plural(n_small, 'node')} "
-            + ("holds" if n_small == 1 else "hold")
-            + f" fewer than {MIN_CELL_ROWS} rows: "
-            + ("it is" if n_small == 1 else "they are")
-            + " drawn grey, without rates or mean score, so that no row's own values show.",
-            "",
-        ]
-    lines.append(_chart_block("graph", gchart, "Mapper graph of the validation data"))
-    lines += _shape_section(a)
 
-    shown_regions = [r for r in a["regions"] if not _small(r["rows"])]
-    reg = pd.DataFrame(
+
+def _local_models_section(a: Analysis, charts: Charts) -> list[str]:
+    """The local-model tests of the weak regions large enough to try one."""
+    tested = [w for w in a.weak_regions if w.local_model.verdict != "too small to try"]
+    if not tested:
+        return []
+    lm = pd.DataFrame(
         {
-            "region": [f"region {r['id']}" for r in shown_regions],
-            "value": [r["metrics"][key]["value"] for r in shown_regions],
-            "low": [r["metrics"][key]["low"] for r in shown_regions],
-            "high": [r["metrics"][key]["high"] for r in shown_regions],
+            "region": [w.id for w in tested],
+            "value": [w.local_model.difference for w in tested],
+            "low": [w.local_model.low for w in tested],
+            "high": [w.local_model.high for w in tested],
         }
     )
-    if a["task"] != "binary":
-        reg["low"], reg["high"] = reg["value"], reg["value"]
-    lines += [
-        "## Regions",
+    charts["local_models"] = views.local_model_view(lm).to_dict()
+    return [
+        "## Local models",
         "",
-        f"The graph is partitioned into {a['summary']['regions']} regions (Louvain "
-        "communities); "
-        "every row has one home region and the table adds up to the whole data set.",
+        _chart_block("local_models", charts["local_models"], "local model results"),
         "",
     ]
-    if len(shown_regions) < len(a["regions"]):
-        lines += [
-            f"Regions of fewer than {MIN_CELL_ROWS} rows show their size only.",
-            "",
-        ]
-    if shown_regions:
-        charts["regions"] = views.region_error_view(
-            reg, overall=o[key]["value"], metric_title=label
-        ).to_dict()
-        lines.append(_chart_block("regions", charts["regions"], f"{label} by region"))
-    lines += [
-        f"| region | rows | nodes | {label} | 95% interval |",
-        "|---|---|---|---|---|",
-    ]
-    for r in a["regions"]:
-        est = r["metrics"][key]
-        cells = (
-            f"{NOT_SHOWN} | "
-            if _small(r["rows"])
-            else f"{rate(est['value'])} | {rate(est['low'])} to {rate(est['high'])}"
-        )
-        lines.append(f"| {r['id']} | {count(r['rows'])} | {r['nodes']} | {cells} |")
-    lines.append(
-        f"| all | {count(prov['rows'])} | {inv['n_nodes']} | {rate(o[key]['value'])} | "
-        f"{rate(o[key]['low'])} to {rate(o[key]['high'])} |"
+
+
+def _comparison_section(a: Analysis, charts: Charts) -> list[str]:
+    """The release against its baseline on the same rows, overall and by region."""
+    comp = a.comparison
+    if not comp:
+        return []
+    compared = [c for c in comp.regions if not _small(c.rows)]
+    ch = pd.DataFrame(
+        {
+            "region": [f"region {c.region}" for c in compared],
+            "value": [c.change for c in compared],
+            "low": [c.low for c in compared],
+            "high": [c.high for c in compared],
+        }
     )
-    lines.append("")
-    if a["task"] == "binary":
-        bins = pd.DataFrame(
-            [
-                {"region": f"region {r['id']}", **b}
-                for r in a["regions"]
-                for b in r.get("calibration", [])
-                if not _small(b["rows"])
-            ]
-        )
-        n_bins = sum(len(r.get("calibration", [])) for r in a["regions"])
-        if len(bins) < n_bins:
-            lines += [
-                f"Score bins of fewer than {MIN_CELL_ROWS} rows are left out of the "
-                "calibration curves.",
-                "",
-            ]
-        if not bins.empty:
-            charts["calibration"] = views.calibration_view(bins).to_dict()
-            lines += [
-                _chart_block("calibration", charts["calibration"], "calibration curves by region"),
-                "",
-            ]
-
-    if a["weak_regions"] and a["stability"]["runs"]:
-        runs = pd.DataFrame(
-            [
-                {"run": r["label"], "region": wid, "found": "found again" if f else "not found"}
-                for r in a["stability"]["runs"]
-                for wid, f in r["found"].items()
-            ]
-        )
-        charts["stability"] = views.stability_view(runs).to_dict()
-        lines += [
-            "## Stability",
-            "",
-            _chart_block("stability", charts["stability"], "stability of weak regions"),
-            "",
-        ]
-    tested_local = [
-        w for w in a["weak_regions"] if w["local_model"]["verdict"] != "too small to try"
+    ov = comp.overall
+    lines = [
+        f"## Against release {escape(comp.baseline)}",
+        "",
+        f"On the same rows, the error rate moved from {rate(ov.before)} to "
+        f"{rate(ov.after)} ({signed(ov.change)}; exact McNemar p-value "
+        f"{pvalue(ov.p_value)}). Regions that got worse: "
+        f"{', '.join(str(x) for x in comp.worse) or 'none'}; better: "
+        f"{', '.join(str(x) for x in comp.better) or 'none'} (Benjamini–Hochberg "
+        "across regions).",
+        "",
     ]
-    if tested_local:
-        lm = pd.DataFrame(
-            {
-                "region": [w["id"] for w in tested_local],
-                "value": [w["local_model"]["difference"] for w in tested_local],
-                "low": [w["local_model"]["low"] for w in tested_local],
-                "high": [w["local_model"]["high"] for w in tested_local],
-            }
-        )
-        charts["local_models"] = views.local_model_view(lm).to_dict()
+    if len(compared) < len(comp.regions):
+        lines += [f"Regions of fewer than {MIN_CELL_ROWS} rows are left out of the chart.", ""]
+    if compared:
+        charts["comparison"] = views.comparison_view(
+            ch, baseline=comp.baseline, candidate=comp.candidate
+        ).to_dict()
         lines += [
-            "## Local models",
-            "",
-            _chart_block("local_models", charts["local_models"], "local model results"),
+            _chart_block("comparison", charts["comparison"], "change in error by region"),
             "",
         ]
+    return lines
 
-    comp = a.get("comparison")
-    if comp:
-        compared = [c for c in comp["regions"] if not _small(c["rows"])]
-        ch = pd.DataFrame(
-            {
-                "region": [f"region {c['region']}" for c in compared],
-                "value": [c["change"] for c in compared],
-                "low": [c["low"] for c in compared],
-                "high": [c["high"] for c in compared],
-            }
+
+def _cautions_section(a: Analysis) -> list[str]:
+    """The cautions of this analysis, then the standing ones."""
+    return [
+        "## Cautions",
+        "",
+        *(f"- {c}" for c in _cautions(a)),
+        *(f"- {c}" for c in STANDING_CAUTIONS),
+        "",
+    ]
+
+
+def _cautions(a: Analysis) -> list[str]:
+    out = []
+    min_rows = a.config["audit"]["min_rows"]
+    for w in a.weak_regions:
+        rows = w.confirmation.rows
+        width = w.error_interval_points
+        if width is not None and (rows < 4 * min_rows or width > 15):
+            out.append(
+                f"Weak region {w.id} has {count(rows)} rows in the confirmation "
+                f"half; its error-rate interval spans {width:.0f} points."
+            )
+        if w.stability is not None and w.stability < 0.5:
+            out.append(
+                f"Weak region {w.id} was found again in only {w.stability * 100:.0f}% of "
+                "reruns with other settings or samples: treat it as a lead, not a finding."
+            )
+    untested = a.summary.candidates_untested
+    if untested:
+        out.append(
+            f"{plural(untested, 'candidate region')} had fewer than {min_rows} confirmation rows "
+            "and were not tested; they are neither confirmed nor cleared."
         )
-        ov = comp["overall"]
-        lines += [
-            f"## Against release {escape(comp['baseline'])}",
-            "",
-            f"On the same rows, the error rate moved from {rate(ov['before'])} to "
-            f"{rate(ov['after'])} ({signed(ov['change'])}; exact McNemar p-value "
-            f"{pvalue(ov['p_value'])}). Regions that got worse: "
-            f"{', '.join(str(x) for x in comp['worse']) or 'none'}; better: "
-            f"{', '.join(str(x) for x in comp['better']) or 'none'} (Benjamini–Hochberg "
-            "across regions).",
-            "",
-        ]
-        if len(compared) < len(comp["regions"]):
-            lines += [f"Regions of fewer than {MIN_CELL_ROWS} rows are left out of the chart.", ""]
-        if compared:
-            charts["comparison"] = views.comparison_view(
-                ch, baseline=comp["baseline"], candidate=comp["candidate"]
-            ).to_dict()
-            lines += [
-                _chart_block("comparison", charts["comparison"], "change in error by region"),
-                "",
-            ]
+    for r in a.regions:
+        if _small(r.rows):
+            out.append(
+                f"Region {r.id} has only {count(r.rows)} rows; its metrics are not "
+                f"shown (fewer than {MIN_CELL_ROWS} rows)."
+            )
+        elif r.rows < min_rows:
+            out.append(f"Region {r.id} has only {count(r.rows)} rows; its metrics are fragile.")
+    dropped = a.provenance.rows_dropped
+    if dropped:
+        out.append(f"{count(dropped)} rows with missing values were dropped before the audit.")
+    return out
 
-    lines += ["## Cautions", ""]
-    lines += [f"- {c}" for c in _cautions(a)]
-    lines += [f"- {c}" for c in STANDING_CAUTIONS]
-    lines.append("")
 
-    v = prov["versions"]
-    lines += [
+def _reproduce_section(a: Analysis) -> list[str]:
+    """How to reproduce: the command, seed, data, graphs, versions and configuration."""
+    prov = a.provenance
+    settings = a.graph.settings
+    return [
         "## How to reproduce",
         "",
-        code_fence(
-            prov["command"] or f"topoaudit audit CONFIG --out BUNDLE --release {a['release']}"
-        ),
+        code_fence(prov.command or f"topoaudit audit CONFIG --out BUNDLE --release {a.release}"),
         "",
-        f"- seed {prov['seed']}; data file {escape(prov['data_file'])}, fingerprint "
-        f"`{prov['fingerprint']}`",
-        f"- graph shown: {escape(a['graph']['settings'].get('filter', ''))}, "
-        f"{escape(a['graph']['settings'].get('cover', ''))}",
+        f"- seed {prov.seed}; data file {escape(prov.data_file)}, fingerprint `{prov.fingerprint}`",
+        f"- graph shown: {escape(settings.get('filter', ''))}, {escape(settings.get('cover', ''))}",
         "- search graphs: "
         + "; ".join(
-            f"{escape(s['name'])} ({s['nodes']} nodes, features used: "
-            f"{', '.join(escape(f) for f in s['features_used'])})"
-            for s in a["search"]
+            f"{escape(s.name)} ({s.nodes} nodes, features used: "
+            f"{', '.join(escape(f) for f in s.features_used)})"
+            for s in a.search
         ),
-        "- versions: " + ", ".join(f"{escape(k)} {escape(val)}" for k, val in sorted(v.items())),
+        "- versions: "
+        + ", ".join(f"{escape(k)} {escape(val)}" for k, val in sorted(prov.versions.items())),
         "",
         "The configuration used (as read, with defaults filled in):",
         "",
         '<pre class="ta-config"><code>'
-        + html_text(json.dumps(a["config"], sort_keys=True, indent=1))
+        + html_text(json.dumps(a.config, sort_keys=True, indent=1))
         + "</code></pre>",
         "",
     ]
-    return Page("\n".join(lines), charts)
 
 
 def render_bundle(folder: str | Path) -> Page:
     """Write ``page.md``, ``charts/*.vl.json`` and ``charts/*.svg`` into a bundle folder."""
     import vl_convert as vlc
 
-    from topoaudit.audit.result import canonical_json
-
     folder = Path(folder)
-    a = json.loads((folder / "analysis.json").read_text(encoding="utf-8"))
-    graph = json.loads((folder / "graph.json").read_text(encoding="utf-8"))
-    page = build_page(a, graph)
+    page = build_page(read_analysis(folder), read_graph(folder))
     charts = folder / "charts"
     charts.mkdir(exist_ok=True)
     for name, spec in page.charts.items():
