@@ -163,5 +163,5 @@ def test_a_regression_audit_runs_end_to_end_and_finds_the_residual_pocket(tmp_pa
     assert all(n.positive_rate is None for n in audit.graph.nodes)
     from topoaudit.report.page import build_page
 
-    page = build_page(json.loads(r.to_json()), audit.graph).markdown
+    page = build_page(json.loads(canonical_json(r)), audit.graph).markdown
     assert "mean absolute error" in page and "## Cautions" in page
