@@ -370,6 +370,7 @@ def graph_document(
             expected_loss=float(loss.expected[m].mean()),
             weak_regions=tuple(wid for wid, mk in masks.items() if mk[m].mean() >= 0.5),
             positive_rate=inp.task.positive_rate(inp.ds.target[m]),
+            excess=float(loss.observed[m].mean() - loss.expected[m].mean()),
         )
         for v, m in enumerate(graph.members)
     )

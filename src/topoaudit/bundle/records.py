@@ -454,6 +454,8 @@ class Node(_Record):
     expected_loss: Stat
     weak_regions: tuple[str, ...]
     positive_rate: Stat = omit_when_none()
+    #: observed less promised loss (absent in bundles written before it was recorded)
+    excess: Stat = omit_when_none()
 
 
 @record

@@ -229,13 +229,6 @@ def _node_stat(node: Node, value: float | None) -> float | None:
     return round(float(value), 3)
 
 
-def _excess(node: Node) -> float | None:
-    """A node's observed loss less the loss its scores promise."""
-    if node.loss is None or node.expected_loss is None:
-        return None
-    return node.loss - node.expected_loss
-
-
 def _graph_frames(graph: GraphDocument) -> tuple[pd.DataFrame, pd.DataFrame]:
     layout = node_layout(graph).set_index("node")
     shown = graph.nodes
@@ -246,7 +239,7 @@ def _graph_frames(graph: GraphDocument) -> tuple[pd.DataFrame, pd.DataFrame]:
             "region": [n.region for n in shown],
             "loss": [_node_stat(n, n.loss) for n in shown],
             "expected_loss": [_node_stat(n, n.expected_loss) for n in shown],
-            "excess": [_node_stat(n, _excess(n)) for n in shown],
+            "excess": [_node_stat(n, n.excess) for n in shown],
             "mean_score": [_node_stat(n, n.mean_score) for n in shown],
             "weak": [", ".join(n.weak_regions) for n in shown],
         }
