@@ -20,11 +20,11 @@ import numpy as np
 from topoaudit.audit.search import SearchSettings, search_graphs
 from topoaudit.audit.weak import Losses, _jaccard, find_weak_regions, merge_confirmed
 
-__all__ = ["StabilityRun", "stability_runs"]
+__all__ = ["Rerun", "stability_runs"]
 
 
 @dataclass(frozen=True)
-class StabilityRun:
+class Rerun:
     """One rerun: its settings, how many regions it confirmed, which weak regions it found."""
 
     label: str
@@ -54,7 +54,7 @@ def stability_runs(
     match_jaccard: float = 0.5,
     random_state: int = 0,
     progress: Callable[[str], None] | None = None,
-) -> list[StabilityRun]:
+) -> list[Rerun]:
     """Rerun the search over the grid and the subsamples (see module docstring)."""
     plans: list[tuple[str, str, SearchSettings, np.ndarray]] = []
     every = np.arange(X.shape[0])
@@ -92,7 +92,7 @@ def stability_runs(
             mine = position[w[position[w] >= 0]]
             found.append(any(_jaccard(mine, f.rows) >= match_jaccard for f in confirmed))
         out.append(
-            StabilityRun(
+            Rerun(
                 label, kind, s.lens_intervals, s.lens_overlap, len(confirmed), tuple(found)
             )
         )
