@@ -30,6 +30,7 @@ from topoaudit.errors import BundleError
 from topoaudit.mapper.topology import Invariants
 
 __all__ = [
+    "DECISIONS",
     "SCHEMA",
     "Analysis",
     "CalibrationBin",
@@ -60,6 +61,7 @@ __all__ = [
     "ShapeColumn",
     "ShapeFeatureRecord",
     "ShapeRecord",
+    "SignOff",
     "Stability",
     "StabilityRun",
     "Summary",
@@ -618,3 +620,49 @@ class Analysis(_Record):
     comparison: Comparison | None = None
     schema: int = SCHEMA
     extra: dict[str, Any] = field(default_factory=dict)
+
+
+# -- sign-offs of a published release ---------------------------------------------------
+
+
+#: what a reviewer may decide about a release, and how a page says it
+DECISIONS = {
+    "approved": "approved",
+    "approved-with-conditions": "approved with conditions",
+    "rejected": "rejected",
+}
+
+
+@record
+class SignOff(_Record):
+    """One reviewer's decision on a published release: ``signoffs/<number>.json`` in the
+    release's folder of the archive, beside the bundle's own files (not one of them).
+
+    ``time`` is UTC in RFC 3339 (``2026-01-02T09:30:00Z``); ``bundle`` the SHA-256 of the
+    bundle's checksums.json when it was signed; ``previous`` the ``digest`` of the
+    release's sign-off numbered one less (``None`` for number 1); ``digest`` the SHA-256 of
+    this record's canonical JSON without ``digest`` (see
+    :func:`topoaudit.report.archive.signoffs`).
+    """
+
+    number: int
+    model: str
+    release: str
+    reviewer: str
+    decision: str
+    note: str
+    time: str
+    bundle: str
+    previous: str | None
+    digest: str
+    version: int = 1
+
+    @property
+    def decision_words(self) -> str:
+        """The decision as a page says it: ``approved with conditions``."""
+        return DECISIONS.get(self.decision, self.decision)
+
+    @property
+    def date(self) -> str:
+        """The day of the sign-off, ``YYYY-MM-DD`` (UTC)."""
+        return self.time[:10]
