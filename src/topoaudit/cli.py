@@ -62,6 +62,15 @@ def _summary(a) -> str:
     )
 
 
+def audit_command(config: str | Path, out: str | Path, release: str | None = None) -> str:
+    """The ``topoaudit audit`` command line that writes this bundle, quoted for a POSIX
+    shell (recorded in the bundle and printed on its page, it runs as printed)."""
+    import shlex
+
+    words = ["topoaudit", "audit", str(config), "--out", str(out)]
+    return shlex.join(words + (["--release", release] if release else []))
+
+
 def _audit(args: argparse.Namespace) -> int:
     from topoaudit.audit.run import run_audit
     from topoaudit.config import load_config
@@ -73,10 +82,7 @@ def _audit(args: argparse.Namespace) -> int:
         msg = f"{out}: the output folder exists and is not empty; choose a new folder."
         raise TopoauditError(msg)
     config = load_config(args.config)
-    command = " ".join(
-        ["topoaudit", "audit", str(args.config), "--out", str(args.out)]
-        + (["--release", args.release] if args.release else [])
-    )
+    command = audit_command(args.config, args.out, args.release)
     with _progress(args) as say:
         audit = run_audit(config, release=args.release, progress=say, command=command)
         say("writing the bundle, its page and its charts")
@@ -103,6 +109,35 @@ def _publish(args: argparse.Namespace) -> int:
 
     dest = publish(args.bundle, args.archive, replace=args.replace)
     print(f"published {args.bundle} as {dest}")
+    return 0
+
+
+def _release_folder(release: str, archive: str | None) -> Path:
+    """The published release folder that ``signoff``'s RELEASE (and ``--archive``) name."""
+    from topoaudit.report.archive import check_name
+
+    if archive is None:
+        return Path(release)
+    parts = release.split("/")
+    if len(parts) != 2:
+        msg = (
+            f"The release {release!r} is not MODEL/RELEASE; with --archive, name the release "
+            "by its model and release names, e.g. meter-failure/2026.2."
+        )
+        raise TopoauditError(msg)
+    return Path(archive) / check_name("model", parts[0]) / check_name("release", parts[1])
+
+
+def _signoff(args: argparse.Namespace) -> int:
+    from topoaudit.report.archive import sign_off
+
+    folder = _release_folder(args.release, args.archive)
+    s = sign_off(folder, reviewer=args.reviewer, decision=args.decision, note=args.note)
+    print(
+        f"sign-off {s.number} of {s.model} {s.release}: {s.decision_words} by {s.reviewer}, "
+        f"{s.time}; recorded in {folder / 'signoffs' / f'{s.number:04d}.json'} "
+        f"(SHA-256 {s.digest})"
+    )
     return 0
 
 
@@ -157,7 +192,7 @@ def _demo(args: argparse.Namespace) -> int:
                 config,
                 release=release.name,
                 progress=say_release,
-                command=f"topoaudit audit {config_path} --release {release.name}",
+                command=audit_command(config_path, out / "bundles" / release.name, release.name),
             )
             say_release("writing the bundle and publishing it")
             bundle = out / "bundles" / release.name
@@ -242,6 +277,35 @@ def _parser() -> argparse.ArgumentParser:
     )
     p.set_defaults(run=_publish)
 
+    p = sub.add_parser(
+        "signoff",
+        help="record a reviewer's decision on a published release",
+        description="Add a reviewer's decision to a published release of the archive: a "
+        "new record beside the bundle (the bundle's own files are not changed), holding the "
+        "digest of the bundle signed and chained to the sign-off before it. The release is "
+        "named by its folder in the archive (ARCHIVE/MODEL/RELEASE, as topoaudit publish "
+        "prints it) or, with --archive, by MODEL/RELEASE. Refused input exits 2.",
+    )
+    p.add_argument(
+        "release",
+        metavar="RELEASE",
+        help="the published release: ARCHIVE/MODEL/RELEASE, or MODEL/RELEASE with --archive",
+    )
+    p.add_argument("--archive", help="the archive folder; RELEASE is then MODEL/RELEASE in it")
+    p.add_argument("--reviewer", required=True, help="who decides: one line, 1 to 100 characters")
+    p.add_argument(
+        "--decision",
+        required=True,
+        metavar="DECISION",
+        help="approved, approved-with-conditions or rejected",
+    )
+    p.add_argument(
+        "--note",
+        required=True,
+        help="why, and any conditions: one line, 1 to 2,000 characters",
+    )
+    p.set_defaults(run=_signoff)
+
     p = sub.add_parser("site", help="the static site of an archive")
     site_sub = p.add_subparsers(dest="site_command", required=True, metavar="ACTION")
     q = site_sub.add_parser("build", help="build the site (mkdocs) from the archive")
@@ -261,8 +325,8 @@ def _parser() -> argparse.ArgumentParser:
     archive_sub = p.add_subparsers(dest="archive_command", required=True, metavar="ACTION")
     q = archive_sub.add_parser(
         "verify",
-        help="compare every bundle with its checksums; exit 1 if a file changed, went "
-        "missing or was added",
+        help="compare every bundle with its checksums and check its sign-offs; exit 1 if a "
+        "file changed, went missing or was added, or a sign-off record is broken",
     )
     q.add_argument("archive", help="the archive folder")
     q.set_defaults(run=_archive_verify)

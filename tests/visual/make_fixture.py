@@ -15,6 +15,7 @@ import tempfile
 from pathlib import Path
 
 from topoaudit.audit.run import run_audit
+from topoaudit.cli import audit_command
 from topoaudit.config import load_config
 from topoaudit.demo import write_demo_project
 
@@ -33,7 +34,7 @@ def main() -> int:
             audit = run_audit(
                 config,
                 release=release.name,
-                command=f"topoaudit audit audit.toml --release {release.name}",
+                command=audit_command("audit.toml", f"bundles/{release.name}", release.name),
             )
             target = HERE / release.name
             if target.exists():

@@ -34,6 +34,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TypeVar
@@ -305,7 +306,7 @@ def _title_section(a: Analysis, task: Task) -> list[str]:
         "",
         "## At a glance",
         "",
-        "| | |",
+        "| what | value |",
         "|---|---|",
         f"| model | {model} |",
         f"| release | {release} (score column {escape(prov.score_column)}"
@@ -346,11 +347,9 @@ def _weak_region(w: WeakRegion) -> list[str]:
     d, c = w.discovery, w.confirmation
     lines = [
         f"### {w.id}: {count(w.rows)} rows ({w.share_of_rows * 100:.1f}% of all), "
-        f"{escape(w.kind.replace('_', ' '))}s",
+        f"{KIND_WORDS.get(w.kind, escape(w.kind))}",
         "",
-        f"Found in the {escape(w.graph.replace('_', '-'))} graph"
-        + (f", and again in {', '.join(escape(x) for x in w.also_found)}" if w.also_found else "")
-        + ".",
+        f"Found in the {_graph_words(w.graph)}{_also_found(w)}.",
         "",
         *_on_feature(w),
         "| | discovery half | confirmation half |",
@@ -381,6 +380,32 @@ def _weak_region(w: WeakRegion) -> list[str]:
     return lines
 
 
+#: what a kind of loss is called on a page
+KIND_WORDS = {
+    "error": "errors",
+    "false_positive": "false positives",
+    "false_negative": "false negatives",
+    "squared_error": "squared errors",
+}
+GRAPH_WORDS = {"features": "feature graph", "error_aware": "error-aware graph"}
+
+
+def _graph_words(name: str) -> str:
+    return GRAPH_WORDS.get(name, escape(name) + " graph")
+
+
+def _also_found(w: WeakRegion) -> str:
+    if not w.also_found:
+        return ""
+    return ", and again in " + _join([_found_words(x) for x in w.also_found])
+
+
+def _found_words(label: str) -> str:
+    """``"error_aware/false_negative"`` -> ``"the error-aware graph (false negatives)"``."""
+    graph, _, kind = label.partition("/")
+    return f"the {_graph_words(graph)} ({KIND_WORDS.get(kind, escape(kind))})"
+
+
 def _on_feature(w: WeakRegion) -> list[str]:
     place = w.on_feature
     if not place:
@@ -399,7 +424,9 @@ def _on_feature(w: WeakRegion) -> list[str]:
 def _description(desc: Description) -> list[str]:
     """Who is in a weak region: feature contrasts, categories and the surrogate rule."""
     lines = [
-        "Who is in it (largest standardised mean differences against the other rows):",
+        "Who is in it (largest standardised mean differences against the other rows; a "
+        "standardised difference is the difference of the means divided by the pooled "
+        "standard deviation of the two groups):",
         "",
         "| feature | mean inside | mean outside | standardised difference |",
         "|---|---|---|---|",
@@ -423,13 +450,30 @@ def _description(desc: Description) -> list[str]:
         )
         lines.append("")
     rule = desc.rule
+    n = len(re.findall(r" (?:<=|>) ", rule.text))
+    conditions = "one condition" if n == 1 else f"{n} conditions"
     lines += [
-        f"Approximate rule (a depth-{rule.depth} surrogate tree, an approximation of "
-        f"the region): {escape(rule.text)}; precision {rate(rule.precision, 2)}, "
-        f"recall {rate(rule.recall, 2)}.",
+        f"Approximate rule ({conditions}, from a small decision tree fitted to tell the "
+        f"region's rows from the others): {escape(rule.text)}; precision "
+        f"{rate(rule.precision, 2)} (the share of rows the rule picks that are in the "
+        f"region), recall {rate(rule.recall, 2)} (the share of the region it picks).",
         "",
     ]
+    if _poor_rule(rule.precision, rule.recall):
+        lines += [
+            f"This rule describes the region poorly (precision or recall below "
+            f"{POOR_RULE}): read the contrasts above, not the rule.",
+            "",
+        ]
     return lines
+
+
+#: below this precision or recall, an approximate rule is labelled a poor description
+POOR_RULE = 0.5
+
+
+def _poor_rule(precision: float | None, recall: float | None) -> bool:
+    return any(v is None or v < POOR_RULE for v in (precision, recall))
 
 
 def _local_model_sentence(lm: LocalModelTest) -> str:
@@ -824,20 +868,37 @@ def _cautions(a: Analysis) -> list[str]:
     return out
 
 
+def _epoch(day: str) -> int:
+    """Seconds from 1970-01-01 to midnight UTC of ``day`` (YYYY-MM-DD)."""
+    import datetime as dt
+
+    return int(dt.datetime.fromisoformat(day).replace(tzinfo=dt.UTC).timestamp())
+
+
 def _reproduce_section(a: Analysis) -> list[str]:
     """How to reproduce: the command, seed, data, graphs, versions and configuration."""
     prov = a.provenance
     settings = a.graph.settings
+    command = prov.command or f"topoaudit audit CONFIG --out BUNDLE --release {a.release}"
     return [
         "## How to reproduce",
         "",
-        code_fence(prov.command or f"topoaudit audit CONFIG --out BUNDLE --release {a.release}"),
+        code_fence(f"SOURCE_DATE_EPOCH={_epoch(a.created)} {command}"),
         "",
-        f"- seed {prov.seed}; data file {escape(prov.data_file)}, fingerprint `{prov.fingerprint}`",
+        "Run it from the folder the audit ran in (the paths are as they were given). The "
+        "output folder must not exist or be empty: move this bundle aside first. With the "
+        "same data, configuration and versions, every file of the new bundle is byte for "
+        "byte the same as this one's; SOURCE_DATE_EPOCH keeps the audit's date.",
+        "",
+        f"- seed {prov.seed}; data file {escape(prov.data_file)}",
+        f"- data fingerprint `{prov.fingerprint}`: the SHA-256 of the rows and columns the "
+        "audit used (the id, the target, the score columns and the features, after rows "
+        "were dropped as configured), hashed column by column; it is not the checksum of "
+        "the file, and the same rows read from CSV or Parquet give the same fingerprint",
         f"- graph shown: {escape(settings.get('filter', ''))}, {escape(settings.get('cover', ''))}",
         "- search graphs: "
         + "; ".join(
-            f"{escape(s.name)} ({s.nodes} nodes, features used: "
+            f"the {_graph_words(s.name)} ({plural(s.nodes, 'node')}, features used: "
             f"{', '.join(escape(f) for f in s.features_used)})"
             for s in a.search
         ),
@@ -853,6 +914,22 @@ def _reproduce_section(a: Analysis) -> list[str]:
     ]
 
 
+_SVG_ID = re.compile(r'id="([A-Za-z_][\w.-]*?)_(\d+)"')
+
+
+def stable_svg_ids(svg: str, name: str) -> str:
+    """``svg`` with the ids the converter numbers per process (``gradient_3``) renamed by
+    the chart's name and their order in the file (``graph-gradient-0``), so that the same
+    chart gives the same file whatever was drawn before it in the process."""
+    ids: dict[str, str] = {}
+    for m in _SVG_ID.finditer(svg):
+        old = f"{m.group(1)}_{m.group(2)}"
+        ids.setdefault(old, f"{name}-{m.group(1)}-{len(ids)}")
+    for old, new in ids.items():
+        svg = re.sub(rf'(?<=["#(]){re.escape(old)}(?=[")])', new, svg)
+    return svg
+
+
 def render_bundle(folder: str | Path) -> Page:
     """Write ``page.md``, ``charts/*.vl.json`` and ``charts/*.svg`` into a bundle folder."""
     import vl_convert as vlc
@@ -863,7 +940,7 @@ def render_bundle(folder: str | Path) -> Page:
     charts.mkdir(exist_ok=True)
     for name, spec in page.charts.items():
         (charts / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
-        svg = vlc.vegalite_to_svg(spec)
+        svg = stable_svg_ids(vlc.vegalite_to_svg(spec), name)
         (charts / f"{name}.svg").write_text(svg, encoding="utf-8")
     (folder / "page.md").write_text(page.markdown, encoding="utf-8")
     return page
