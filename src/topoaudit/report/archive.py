@@ -4,6 +4,7 @@ Layout::
 
     <archive>/.lock                                   held while a publish runs
     <archive>/<model>/<release>/                      one published bundle, never changed in place
+    <archive>/<model>/<release>/signoffs/             its sign-offs (not bundle files, see below)
     <archive>/<model>/.history/<release>/<n>/         bundles replaced with ``replace=True``
     <archive>/<model>/.incoming-<release>-<random>/   a publish in progress (or interrupted)
 
@@ -22,6 +23,20 @@ Every folder the tool writes (a bundle, a release, a site) is made the same way,
 ``.lock`` held, flushed, and committed with one rename or exchange; leftovers of runs
 that died are swept by the next run.
 
+A reviewer's decision on a published release is a sign-off (:func:`sign_off`): one new
+record ``signoffs/<n>.json`` (a :class:`~topoaudit.bundle.records.SignOff`, numbered
+from 1) in the release's folder, beside the bundle's files and not among them, so the
+bundle and its ``checksums.json`` stay byte for byte as published. Each record holds
+the SHA-256 of the bundle's ``checksums.json`` (the bundle it signs), the digest of the
+record before it and its own digest; ``signoffs/chain.json`` counts the records and
+names the newest one's digest, so an edited, removed, renumbered or reordered record
+breaks the chain and :func:`verify_archive` reports it. A sign-off replaces the whole
+``signoffs`` folder with one that holds the old records, byte for byte, and the new one,
+through :func:`staging` and under the archive lock: killed at any moment, the release
+has the old sign-offs or the new ones. Sign-offs belong to the bundle they sign: a
+release published again with ``replace=True`` starts with none, and the old ones move
+with the old bundle into the history, where they are still checked against it.
+
 Nothing here follows a symbolic link: a bundle or an archive that contains one is
 refused, so no input can make the tool read or write outside the folders it was given.
 """
@@ -30,13 +45,17 @@ from __future__ import annotations
 
 import contextlib
 import ctypes
+import dataclasses
+import datetime as _dt
 import errno
 import functools
+import hashlib
 import os
 import re
 import shutil
 import sys
 import tempfile
+import unicodedata
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -54,9 +73,10 @@ from topoaudit.bundle.files import (
     write_checksums,
     write_file,
 )
-from topoaudit.bundle.records import Analysis
+from topoaudit.bundle.records import DECISIONS, Analysis, SignOff
 from topoaudit.config import NAME_PATTERN
-from topoaudit.errors import ArchiveError, BundleError
+from topoaudit.errors import ArchiveError, BundleError, ParameterError, unknown_name
+from topoaudit.wording import plural
 
 try:  # pragma: no cover - every supported platform has fcntl
     import fcntl
@@ -69,12 +89,16 @@ __all__ = [
     "ArchiveError",
     "Finding",
     "PublishedRelease",
+    "SignOff",
     "Stage",
     "Verification",
     "bundle_findings",
     "check_name",
     "list_releases",
     "publish",
+    "sign_off",
+    "signoff_findings",
+    "signoffs",
     "staging",
     "sweep",
     "verify_archive",
@@ -86,6 +110,16 @@ HISTORY = ".history"
 INCOMING = ".incoming-"
 LOCK = ".lock"  # the flock(2) file of the archive and of every work folder
 _INTENT = "intent.json"
+SIGNOFFS = "signoffs"  # a release's sign-off records: beside the bundle's files, not of them
+CHAIN = "chain.json"  # in SIGNOFFS: how many records there are, and the newest one's digest
+_SIGNOFF_WORK = f".{SIGNOFFS}.partial-"  # a sign-off in progress (or interrupted)
+_RECORD_NAME = re.compile(r"([0-9]{4,})\.json")
+
+
+def _bundle_own(rel: str) -> bool:
+    """True for a file of the bundle itself; False for the sign-offs that lie beside them."""
+    top = rel.split("/", 1)[0]
+    return top != SIGNOFFS and not top.startswith(_SIGNOFF_WORK)
 
 
 def check_name(kind: str, name: object) -> str:
@@ -113,7 +147,12 @@ def _flush_tree(folder: Path) -> None:
 def _copy_tree(src: Path, dst: Path) -> None:
     """Copy a bundle's plain files (links refused); :meth:`Stage.commit` flushes them."""
     bundle_files(src)  # refuses links and special files before anything is copied
-    shutil.copytree(src, dst, copy_function=shutil.copyfile)
+
+    def not_the_bundles(folder: str, names: list[str]) -> list[str]:
+        # the sign-offs of a release copied out of an archive signed that publication only
+        return [n for n in names if Path(folder) == src and not _bundle_own(n)]
+
+    shutil.copytree(src, dst, copy_function=shutil.copyfile, ignore=not_the_bundles)
 
 
 def _parked(a: Path) -> Path:
@@ -290,13 +329,14 @@ def staging(
 @dataclass(frozen=True)
 class Finding:
     """One thing :func:`verify_archive` found: ``kind`` is one of changed, missing, added,
-    unreadable, link, sequence (a problem) or pending, leftover (an interrupted run)."""
+    unreadable, link, sequence, sign-off (a problem) or pending, leftover (an interrupted
+    run)."""
 
     kind: str
     path: str
     detail: str = ""
 
-    PROBLEMS = ("changed", "missing", "added", "unreadable", "link", "sequence")
+    PROBLEMS = ("changed", "missing", "added", "unreadable", "link", "sequence", "sign-off")
 
     @property
     def problem(self) -> bool:
@@ -315,7 +355,7 @@ def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> l
         return p.relative_to(base).as_posix() if p != base else "."
 
     try:
-        files = bundle_files(folder)
+        files = {k: p for k, p in bundle_files(folder).items() if _bundle_own(k)}
     except ArchiveError as exc:
         return [Finding("link", rel(folder), str(exc))]
     try:
@@ -339,13 +379,17 @@ def bundle_findings(folder: str | Path, *, relative_to: Path | None = None) -> l
     return found
 
 
+def _listed(problems: list[Finding]) -> str:
+    """``page.md changed; notes.txt added and 2 more``: the first problems, for a message."""
+    listed = "; ".join(f"{p.path} {p.kind}" for p in problems[:5])
+    return listed + (f" and {len(problems) - 5} more" if len(problems) > 5 else "")
+
+
 def refuse_changed(folder: Path) -> None:
     problems = bundle_findings(folder)
     if problems:
-        listed = "; ".join(f"{p.path} {p.kind}" for p in problems[:5])
-        more = f" and {len(problems) - 5} more" if len(problems) > 5 else ""
         msg = (
-            f"{folder}: the bundle does not match its checksums.json ({listed}{more}); it "
+            f"{folder}: the bundle does not match its checksums.json ({_listed(problems)}); it "
             "changed after it was written. Audit again, or restore the original files "
             "(topoaudit archive verify lists every difference)."
         )
@@ -444,7 +488,11 @@ def _same_bundle(bundle: Path, published: Path) -> bool:
     except (OSError, ValueError, KeyError, TypeError):
         return False
     recorded.pop(PUBLISHED, None)
-    mine = {rel: sha256(p) for rel, p in bundle_files(bundle).items() if rel != CHECKSUMS}
+    mine = {
+        rel: sha256(p)
+        for rel, p in bundle_files(bundle).items()
+        if rel != CHECKSUMS and _bundle_own(rel)
+    }
     return mine == recorded and not bundle_findings(published)
 
 
@@ -548,6 +596,278 @@ def list_releases(archive: str | Path, model: str) -> list[PublishedRelease]:
     return out
 
 
+# -- sign-offs ---------------------------------------------------------------------------
+
+#: bounds on the text of a sign-off, in characters (common practice, no source)
+REVIEWER_LIMIT = 100
+NOTE_LIMIT = 2000
+# characters that reorder how the text around them shows (Unicode bidirectional embeddings,
+# overrides and isolates): a name holding one can read as another name
+_BIDI = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069")
+
+
+def _signoff_time() -> str:
+    """Now, UTC, as an RFC 3339 timestamp (``SOURCE_DATE_EPOCH`` when set, as for
+    :func:`~topoaudit.bundle.files.build_date`)."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None and epoch.strip().isdigit():
+        now = _dt.datetime.fromtimestamp(int(epoch), tz=_dt.UTC)
+    else:
+        now = _dt.datetime.now(tz=_dt.UTC)
+    return now.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def _signoff_text(key: str, value: object, limit: int) -> str:
+    """``value`` without surrounding spaces, if it is one line of 1 to ``limit`` characters."""
+    if not isinstance(value, str) or not value.strip():
+        raise ParameterError(f"The sign-off's {key} is empty; give 1 to {limit:,} characters.")
+    text = value.strip()
+    if len(text) > limit:
+        msg = f"The sign-off's {key} has {len(text):,} characters; at most {limit:,} are allowed."
+        raise ParameterError(msg)
+    for i, c in enumerate(text, start=1):
+        if unicodedata.category(c) in ("Cc", "Zl", "Zp") or c in _BIDI:
+            msg = (
+                f"The sign-off's {key} holds the control character U+{ord(c):04X} at "
+                f"character {i}; give one line of plain text (no line breaks, tabs or "
+                "direction controls)."
+            )
+            raise ParameterError(msg)
+    return text
+
+
+def _check_decision(decision: object) -> str:
+    if not isinstance(decision, str):
+        raise ParameterError(f"The decision {decision!r} is not one of {', '.join(DECISIONS)}.")
+    if decision not in DECISIONS:
+        raise unknown_name("decision", decision, DECISIONS)
+    return decision
+
+
+def _published_release(folder: Path) -> tuple[Path, Path]:
+    """(release folder, archive) of a current published release; anything else refused."""
+    folder = Path(os.path.abspath(folder))
+    model_dir, archive = folder.parent, folder.parent.parent
+    for path in (archive, model_dir, folder):
+        if path.is_symlink():
+            raise ArchiveError(f"{path}: is a symbolic link; archives may not hold links.")
+    if HISTORY in (model_dir.name, archive.name):
+        msg = (
+            f"{folder}: is a replaced bundle in the archive's history; only the release as "
+            "published now can be signed (ARCHIVE/MODEL/RELEASE)."
+        )
+        raise ArchiveError(msg)
+    if not (folder / PUBLISHED).is_file():
+        msg = (
+            f"{folder}: is not a published release (no {PUBLISHED}); give the release's "
+            "folder in the archive, ARCHIVE/MODEL/RELEASE, as topoaudit publish prints it."
+        )
+        raise ArchiveError(msg)
+    check_name("model", model_dir.name)
+    check_name("release", folder.name)
+    return folder, archive
+
+
+def _signoff_digest(s: SignOff) -> str:
+    """The SHA-256 of the record's canonical JSON without its ``digest``."""
+    body = {k: v for k, v in s.to_dict().items() if k != "digest"}
+    return hashlib.sha256(canonical_json(body).encode("utf-8")).hexdigest()
+
+
+def sign_off(release: str | Path, *, reviewer: str, decision: str, note: str) -> SignOff:
+    """Record a reviewer's decision on the published release folder ``release``.
+
+    ``decision`` is one of :data:`~topoaudit.bundle.records.DECISIONS`; ``reviewer`` and
+    ``note`` are one line each of at most :data:`REVIEWER_LIMIT` and :data:`NOTE_LIMIT`
+    characters. Refused: a folder that is not a current published release, a bundle
+    that no longer matches its checksums, and a release whose earlier sign-offs are
+    broken. The same reviewer, decision and note signed again for the same bundle (a
+    re-run after an interruption) returns the record already there and writes nothing.
+    The bundle's own files are never written.
+    """
+    reviewer = _signoff_text("reviewer", reviewer, REVIEWER_LIMIT)
+    note = _signoff_text("note", note, NOTE_LIMIT)
+    decision = _check_decision(decision)
+    folder, archive = _published_release(Path(release))
+    with locked(archive / LOCK):
+        folder, archive = _published_release(folder)  # again: a replace may have run
+        target = folder / SIGNOFFS  # put right what an interrupted sign-off left
+        sweep(folder, _SIGNOFF_WORK, functools.partial(_put_back, target, SIGNOFFS))
+        changed = bundle_findings(folder)
+        if changed:
+            msg = (
+                f"{folder}: will not sign this release: its bundle does not match its "
+                f"checksums.json ({_listed(changed)}), so it is not the bundle that was "
+                "published. Restore the published files (topoaudit archive verify lists "
+                "every difference), then sign."
+            )
+            raise ArchiveError(msg)
+        earlier = signoffs(folder)
+        bundle = _checksums_digest(folder) or ""
+        last = earlier[-1] if earlier else None
+        if last and (last.reviewer, last.decision, last.note, last.bundle) == (
+            reviewer,
+            decision,
+            note,
+            bundle,
+        ):
+            return last
+        record = SignOff(
+            number=len(earlier) + 1,
+            model=folder.parent.name,
+            release=folder.name,
+            reviewer=reviewer,
+            decision=decision,
+            note=note,
+            time=_signoff_time(),
+            bundle=bundle,
+            previous=last.digest if last else None,
+            digest="",
+        )
+        record = dataclasses.replace(record, digest=_signoff_digest(record))
+        _commit_signoff(folder, record)
+    return record
+
+
+def _record_name(number: int) -> str:
+    return f"{number:04d}.json"
+
+
+def _commit_signoff(folder: Path, record: SignOff) -> None:
+    """Put a ``signoffs`` folder of the old records (copied byte for byte), the new one
+    and a new ``chain.json`` in place of the old folder, in one rename or exchange."""
+    target = folder / SIGNOFFS
+    with staging(target, prefix=_SIGNOFF_WORK, name=SIGNOFFS) as stage:
+        stage.path.mkdir()
+        if target.is_dir():
+            for old in sorted(target.iterdir()):
+                if _RECORD_NAME.fullmatch(old.name):
+                    shutil.copyfile(old, stage.path / old.name)
+        write_file(stage.path / _record_name(record.number), canonical_json(record))
+        chain = {"records": record.number, "newest": record.digest}
+        write_file(stage.path / CHAIN, canonical_json(chain))
+
+
+def _read_signoff(path: Path) -> SignOff:
+    try:
+        return SignOff.from_dict(read_json(path), f"{path.name}:")
+    except (OSError, ValueError) as exc:  # BundleError is a ValueError
+        raise ArchiveError(f"{path.name}: cannot be read as a sign-off ({exc}).") from exc
+
+
+def _record_problems(s: SignOff, n: int, previous: str | None, bundle: str | None) -> list[str]:
+    """What is wrong with the record stored as number ``n`` (``previous``: the digest of
+    record ``n - 1``, ``"?"`` when that one is missing or unreadable)."""
+    out = []
+    if s.number != n:
+        out.append(f"it says it is sign-off {s.number}: the records were renamed or reordered")
+    if s.digest != _signoff_digest(s):
+        out.append("its digest does not match its content: it was edited after it was written")
+    if previous != "?" and s.previous != previous:
+        out.append(
+            f"it does not name the digest of sign-off {n - 1} before it: an earlier record "
+            "was edited, removed or put in another order"
+            if n > 1
+            else "the first sign-off names a record before it: records before it were removed"
+        )
+    if s.bundle != bundle:
+        out.append(
+            "it names another bundle than the one beside it (the SHA-256 of checksums.json "
+            "differs): it was signed for another bundle, or the bundle changed"
+        )
+    if s.decision not in DECISIONS:
+        out.append(f"its decision {s.decision!r} is none of {', '.join(DECISIONS)}")
+    return out
+
+
+def _chain_problems(where: Path, records: dict[int, SignOff | None]) -> list[str]:
+    """What is wrong with ``chain.json`` for the records found (by number)."""
+    n = max(records, default=0)
+    try:
+        chain = read_json(where / CHAIN)
+        count, newest = int(chain["records"]), chain["newest"]
+    except FileNotFoundError:
+        return [f"{CHAIN} is missing: it counts the sign-offs and names the newest"] if n else []
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        return [f"{CHAIN} cannot be read ({exc!r})"]
+    if count != n:
+        why = "the newest was removed" if count > n else "a record was added by hand"
+        return [f"{CHAIN} counts {plural(count, 'sign-off')}, the folder holds {n}: {why}"]
+    last = records.get(n)
+    if last is not None and newest != last.digest:
+        return [f"{CHAIN} names another newest sign-off: the newest record was replaced"]
+    return []
+
+
+def _signoff_check(folder: Path) -> tuple[list[SignOff], list[tuple[str, str]]]:
+    """The readable sign-offs of ``folder``, oldest first, and its problems as
+    (path under ``folder``, detail)."""
+    where = folder / SIGNOFFS
+    if not where.exists() and not where.is_symlink():
+        return [], []
+    if where.is_symlink() or not where.is_dir():
+        return [], [(SIGNOFFS, "not a folder of sign-off records")]
+    problems: list[tuple[str, str]] = []
+    found: dict[int, Path] = {}
+    for path in sorted(where.iterdir()):
+        match = _RECORD_NAME.fullmatch(path.name)
+        if match and path.is_file() and not path.is_symlink():
+            found[int(match.group(1))] = path
+        elif path.name != CHAIN or not path.is_file() or path.is_symlink():
+            problems.append((f"{SIGNOFFS}/{path.name}", "not a sign-off record"))
+    bundle = _checksums_digest(folder)
+    records: dict[int, SignOff | None] = {}
+    previous: str | None = None
+    for n in range(1, max(found, default=0) + 1):
+        rel = f"{SIGNOFFS}/{_record_name(n)}"
+        try:
+            s = _read_signoff(found[n]) if n in found else None
+        except ArchiveError as exc:
+            s = None
+            problems.append((rel, str(exc)))
+        if n not in found:
+            problems.append((rel, f"sign-off {n} is missing: a record was removed"))
+        records[n] = s
+        if s is not None:
+            problems += [(rel, d) for d in _record_problems(s, n, previous, bundle)]
+        previous = s.digest if s is not None else "?"
+    problems += [(f"{SIGNOFFS}/{CHAIN}", d) for d in _chain_problems(where, records)]
+    return [s for s in records.values() if s is not None], problems
+
+
+def signoffs(release_folder: str | Path) -> list[SignOff]:
+    """The sign-offs of a published release (or of a bundle in the history), newest last.
+
+    Each record is checked (its digest, the chain, the bundle it names); a broken one is
+    refused with an :class:`ArchiveError` that names it, so that no page shows a decision
+    that was not made on this bundle. A release never signed gives an empty list.
+    """
+    folder = Path(release_folder)
+    records, problems = _signoff_check(folder)
+    if problems:
+        rel, detail = problems[0]
+        more = f" ({plural(len(problems) - 1, 'more problem')})" if len(problems) > 1 else ""
+        msg = (
+            f"{folder / rel}: {detail}{more}; the sign-offs of this release cannot be trusted. "
+            "Run topoaudit archive verify on the archive to see every problem."
+        )
+        raise ArchiveError(msg)
+    return records
+
+
+def signoff_findings(folder: str | Path, *, relative_to: Path | None = None) -> list[Finding]:
+    """The problems of a bundle's sign-offs, and its interrupted sign-offs as leftovers."""
+    folder = Path(folder)
+    base = relative_to or folder
+    out = []
+    for work in sorted(folder.glob(_SIGNOFF_WORK + "*")):
+        detail = "an interrupted sign-off that changed nothing; the next sign-off removes it"
+        out.append(Finding("leftover", (work.relative_to(base)).as_posix(), detail))
+    _records, problems = _signoff_check(folder)
+    out += [Finding("sign-off", (folder / r).relative_to(base).as_posix(), d) for r, d in problems]
+    return out
+
+
 # -- verification ------------------------------------------------------------------------
 
 
@@ -558,6 +878,7 @@ class Verification:
     archive: Path
     bundles: list[str] = field(default_factory=list)
     findings: list[Finding] = field(default_factory=list)
+    signoffs: int = 0  # sign-off records checked
 
     @property
     def problems(self) -> list[Finding]:
@@ -568,7 +889,8 @@ class Verification:
         return not self.problems
 
     def report(self) -> str:
-        lines = [f"archive {self.archive}: {len(self.bundles)} bundles checked"]
+        signed = f", {plural(self.signoffs, 'sign-off')}" if self.signoffs else ""
+        lines = [f"archive {self.archive}: {plural(len(self.bundles), 'bundle')}{signed} checked"]
         lines += [f"  {f}" for f in self.findings]
         n = len(self.problems)
         lines.append(
@@ -583,8 +905,10 @@ def verify_archive(archive: str | Path) -> Verification:
     """Check every bundle of ``archive``, current and in history, against its checksums.
 
     Reports files that changed, went missing or were added, symbolic links, anything that
-    is not part of the layout, and gaps in each model's publication sequence (a whole
-    bundle that went missing). Reads only; changes nothing.
+    is not part of the layout, gaps in each model's publication sequence (a whole bundle
+    that went missing), and each bundle's sign-offs: every record's digest, the chain from
+    each record to the one before it and to ``chain.json``, and that each names the digest
+    of the bundle it lies beside. Reads only; changes nothing.
     """
     archive = Path(archive)
     if archive.is_symlink() or not archive.is_dir():
@@ -597,6 +921,8 @@ def verify_archive(archive: str | Path) -> Verification:
     def check(bundle: Path) -> None:
         v.bundles.append(bundle.relative_to(archive).as_posix())
         v.findings.extend(bundle_findings(bundle, relative_to=archive))
+        v.findings.extend(signoff_findings(bundle, relative_to=archive))
+        v.signoffs += len(_signoff_check(bundle)[0])
 
     for model_dir in sorted(archive.iterdir()):
         if model_dir.is_symlink():

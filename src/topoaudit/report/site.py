@@ -21,6 +21,7 @@ from typing import Any
 from topoaudit.audit.changes import release_changes
 from topoaudit.audit.tasks import task_named
 from topoaudit.bundle.files import build_date, canonical_json, read_members
+from topoaudit.bundle.records import SignOff
 from topoaudit.progress import Progress
 from topoaudit.report.archive import (
     ArchiveError,
@@ -30,12 +31,13 @@ from topoaudit.report.archive import (
     list_releases,
     publish,
     refuse_changed,
+    signoffs,
     staging,
 )
 from topoaudit.report.diff import diff_markdown
 from topoaudit.report.text import count, escape, rate
 
-__all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish"]
+__all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish", "signoff_words"]
 
 SITE_MARKER = ".topoaudit-site"
 
@@ -86,16 +88,27 @@ def _check_output(out: Path, archive: Path) -> None:
         raise ArchiveError(msg)
 
 
+def signoff_words(records: list[SignOff]) -> str:
+    """The latest of a release's sign-offs (:func:`~topoaudit.report.archive.signoffs`,
+    newest last) in words, escaped for Markdown: ``approved with conditions by A. Reviewer,
+    2026-01-02``, or ``not signed off``."""
+    if not records:
+        return "not signed off"
+    s = records[-1]
+    return f"{escape(s.decision_words)} by {escape(s.reviewer)}, {escape(s.date)}"
+
+
 def _history_page(model: str, rels: list[PublishedRelease]) -> str:
     headline_key, headline = task_named(rels[0].analysis.task).headline
     lines = [
         f"# {escape(model)}: release history",
         "",
-        "Newest first. Each release links to its audit page.",
+        "Newest first. Each release links to its audit page; the sign-off is the latest "
+        "reviewer's decision on it.",
         "",
-        f"| release | audited | rows | {headline} | ROC AUC | weak regions | compared with "
-        "the release before |",
-        "|---|---|---|---|---|---|---|",
+        f"| release | audited | rows | {headline} | ROC AUC | weak regions | sign-off | "
+        "compared with the release before |",
+        "|---|---|---|---|---|---|---|---|",
     ]
     for i, r in enumerate(rels):
         a = r.analysis
@@ -105,7 +118,8 @@ def _history_page(model: str, rels: list[PublishedRelease]) -> str:
         lines.append(
             f"| [{escape(r.release)}]({r.release}/index.md) | {escape(a.created)} | "
             f"{count(a.provenance.rows)} | {rate(main and main.value)} | "
-            f"{rate(auc and auc.value)} | {a.summary.weak_regions} | {compare} |"
+            f"{rate(auc and auc.value)} | {a.summary.weak_regions} | "
+            f"{signoff_words(signoffs(r.folder))} | {compare} |"
         )
     return "\n".join(lines) + "\n"
 
