@@ -34,11 +34,11 @@ def test_loop_columns_are_ranked_by_eta_squared_as_in_a_one_way_anova():
     X[members[2], 2] += 0.4
     got = _loop_columns(X, ["a", "b", "c"], members, (0, 1, 2))
     for entry in got:
-        j = "abc".index(entry["column"])
+        j = "abc".index(entry.column)
         f, _ = stats.f_oneway(*(X[m, j] for m in members))
         df_b, df_w = 2, 120 - 3
-        assert entry["eta_squared"] == pytest.approx(f * df_b / (f * df_b + df_w), rel=1e-9)
-    assert got[0]["column"] == "a"
+        assert entry.eta_squared == pytest.approx(f * df_b / (f * df_b + df_w), rel=1e-9)
+    assert got[0].column == "a"
 
 
 def _summary():
@@ -81,5 +81,5 @@ def test_a_weak_region_is_placed_on_the_most_specific_feature_holding_half_of_it
     if expected is None:
         assert got is None
     else:
-        assert {k: got[k] for k in expected} == expected
-        assert got["share"] == 1.0
+        assert {k: getattr(got, k) for k in expected} == expected
+        assert got.share == 1.0
