@@ -2,8 +2,9 @@
 
 Every file of a bundle that holds aggregates is one record here:
 
-* ``analysis.json`` is an :class:`Analysis` (global metrics, regions, weak regions with
-  their local-model tests, candidates, stability, the release comparison, provenance);
+* ``analysis.json`` is an :class:`Analysis` (global metrics, the outcome table, regions,
+  weak regions with their local-model tests, candidates, stability, the release
+  comparison, provenance);
 * ``graph.json`` is a :class:`GraphDocument` (nodes with their statistics, links).
 
 Producers build records and write them; consumers read records, never raw JSON, so a
@@ -13,9 +14,10 @@ the message (:class:`~topoaudit.errors.BundleError`), not when a page is rendere
 A field's name is its JSON key. A number that is undefined (NaN) or withheld (a small
 cell of the public view, see :mod:`topoaudit.bundle.view`) is stored as ``null`` and
 read as ``None``; sizes, names and places are never ``None``. A field marked
-``omit_when_none`` is left out of the JSON when it is ``None`` (``calibration`` of a
-regression region, ``positive_rate`` of a regression node), as the schema has always
-done.
+``omit_when_none`` is left out of the JSON when it is ``None`` or NaN (``calibration`` of
+a regression region, ``positive_rate`` of a regression node), as the schema has always
+done; fields added to a record after bundles were written are marked so, and a bundle
+without them reads with ``None`` there.
 """
 
 from __future__ import annotations
@@ -38,8 +40,10 @@ __all__ = [
     "CategoryContrast",
     "Comparison",
     "Description",
+    "ErrorMix",
     "Estimate",
     "FeatureContrast",
+    "FoldDifference",
     "GraphDocument",
     "GraphSummary",
     "GridPoint",
@@ -49,14 +53,17 @@ __all__ = [
     "LocalModelTest",
     "MetricChange",
     "Metrics",
+    "NoSkill",
     "Node",
     "OnFeature",
+    "Outcomes",
     "Provenance",
     "RegionBrief",
     "RegionChange",
     "RegionMatch",
     "RegionRecord",
     "ReleaseChanges",
+    "ScoreChange",
     "SearchGraphRecord",
     "ShapeColumn",
     "ShapeFeatureRecord",
@@ -66,6 +73,7 @@ __all__ = [
     "StabilityRun",
     "Summary",
     "SurrogateRule",
+    "ThresholdRow",
     "WeakRegion",
     "from_dict",
     "to_dict",
@@ -94,7 +102,7 @@ def to_dict(record: Any) -> Any:
         out = {}
         for f in dataclasses.fields(record):
             value = getattr(record, f.name)
-            if value is None and f.metadata.get("omit_when_none"):
+            if f.metadata.get("omit_when_none") and _none_or_nan(value):
                 continue
             out[f.name] = to_dict(value)
         return out
@@ -103,6 +111,11 @@ def to_dict(record: Any) -> Any:
     if isinstance(record, dict):
         return {k: to_dict(v) for k, v in record.items()}
     return record
+
+
+def _none_or_nan(value: Any) -> bool:
+    """``None``, or an undefined number (stored as ``null``, so read back as ``None``)."""
+    return value is None or (isinstance(value, float) and value != value)
 
 
 def from_dict(cls: type[R], data: Any, where: str) -> R:
@@ -237,23 +250,97 @@ class CalibrationBin(_Record):
     observed_rate: Stat
 
 
+@record
+class ErrorMix(_Record):
+    """What a set of rows' wrong decisions are (classification): false positives (flagged,
+    no event) and false negatives (not flagged, an event), as counts and as shares of the
+    errors (``None`` when there is no error)."""
+
+    errors: int | None
+    false_positives: int | None
+    false_negatives: int | None
+    false_positive_share: Stat
+    false_negative_share: Stat
+
+
+@record
+class NoSkill(_Record):
+    """A rule that uses no information about a row, beside the release: its decisions
+    (share flagged, error rate, precision, recall) and, for a constant score, its Brier
+    score and log loss (``None`` for a rule that only decides)."""
+
+    name: str
+    flagged_share: Stat
+    error_rate: Stat
+    precision: Stat
+    recall: Stat
+    brier: Stat
+    log_loss: Stat
+
+
+@record
+class ThresholdRow(_Record):
+    """The release's decisions had it flagged at ``threshold`` (``release``: the release's
+    own threshold)."""
+
+    threshold: float
+    release: bool
+    flagged: int | None
+    flagged_share: Stat
+    precision: Stat
+    recall: Stat
+    error_rate: Stat
+
+
+@record
+class Outcomes(_Record):
+    """The outcome table of a classification audit, on every row: the base rate, the
+    release's decisions at its threshold (confusion counts and rates), its Brier score and
+    log loss, the no-skill rules beside it, and its decisions at other thresholds."""
+
+    rows: int
+    threshold: float
+    base_rate: Stat
+    flagged_share: Stat
+    true_positives: int | None
+    false_positives: int | None
+    false_negatives: int | None
+    true_negatives: int | None
+    precision: Stat
+    recall: Stat
+    error_rate: Stat
+    brier: Stat
+    log_loss: Stat
+    no_skill: tuple[NoSkill, ...]
+    thresholds: tuple[ThresholdRow, ...]
+
+
 # -- regions, candidates and weak regions ---------------------------------------------------
 
 
 @record
 class RegionRecord(_Record):
-    """One region of the graph's partition with its metrics."""
+    """One region of the graph's partition with its metrics (and, for classification,
+    the mix of its errors)."""
 
     id: int
     rows: int
     nodes: int
     metrics: Metrics
     calibration: tuple[CalibrationBin, ...] | None = omit_when_none()
+    error_mix: ErrorMix | None = omit_when_none()
 
 
 @record
 class HalfEstimate(_Record):
-    """A region on one half of the rows: its size, observed and expected loss and rates."""
+    """A region on one half of the rows: its size, observed and expected loss and rates.
+
+    ``expected`` is the loss the scores promise *rescaled* by ``scale``, the half's
+    observed total over its promised total (every row of the half, not the region's
+    alone), so that the expected total of the half equals the observed one;
+    ``promised_rate`` is the promise before rescaling, per row of the region on this half.
+    Both are absent from bundles written before they were recorded.
+    """
 
     rows: int
     observed: Stat
@@ -261,9 +348,21 @@ class HalfEstimate(_Record):
     observed_rate: Stat
     expected_rate: Stat
     ratio: Stat
+    scale: Stat = omit_when_none()
+    promised_rate: Stat = omit_when_none()
 
     @classmethod
-    def of(cls, rows: int, observed: float, expected: float) -> HalfEstimate:
+    def of(
+        cls,
+        rows: int,
+        observed: float,
+        expected: float,
+        *,
+        scale: float | None = None,
+        promised: float | None = None,
+    ) -> HalfEstimate:
+        """From the region's observed and rescaled expected totals on the half; ``scale``
+        and ``promised`` (the unscaled expected total) when known."""
         nan = float("nan")
         return cls(
             rows=rows,
@@ -272,6 +371,8 @@ class HalfEstimate(_Record):
             observed_rate=observed / rows if rows else nan,
             expected_rate=expected / rows if rows else nan,
             ratio=observed / expected if expected > 0 else nan,
+            scale=scale,
+            promised_rate=None if promised is None else (promised / rows if rows else nan),
         )
 
 
@@ -330,8 +431,27 @@ class Description(_Record):
 
 
 @record
+class FoldDifference(_Record):
+    """The mean over cross-validation folds of a per-fold difference of held-out losses,
+    with its Student t interval (folds - 1 degrees of freedom)."""
+
+    difference: Stat
+    low: Stat
+    high: Stat
+
+
+@record
 class LocalModelTest(_Record):
-    """Whether a model fitted on a region alone does better there than the release."""
+    """Whether a model fitted on a region alone does better there than the release.
+
+    Held-out losses on the same folds: the release's scores (``release_loss``), a
+    constant (the training folds' rate or mean, ``constant_loss``), the release
+    recalibrated on the region (``recalibrated_loss``, by ``recalibration``) and the local
+    model (``local_loss``; ``model`` is the model that ran). ``difference``, ``low`` and
+    ``high`` are local minus release; ``local_vs_recalibrated`` (which the verdict reads)
+    and ``recalibrated_vs_release`` the other two differences. The fields after
+    ``verdict`` are absent from bundles written before they were recorded.
+    """
 
     rows: int
     folds: int
@@ -342,6 +462,11 @@ class LocalModelTest(_Record):
     low: Stat
     high: Stat
     verdict: str
+    constant_loss: Stat = omit_when_none()
+    recalibrated_loss: Stat = omit_when_none()
+    recalibration: str | None = omit_when_none()
+    local_vs_recalibrated: FoldDifference | None = omit_when_none()
+    recalibrated_vs_release: FoldDifference | None = omit_when_none()
 
 
 @record
@@ -367,6 +492,11 @@ class WeakRegion(Candidate):
     local_model: LocalModelTest
     on_feature: OnFeature | None
     stability: Stat
+    #: classification: the error rate on the confirmation half, with its Wilson interval,
+    #: and the interval's width in points (``error_interval_points`` is of all its rows)
+    confirmation_error_rate: Estimate | None = omit_when_none()
+    confirmation_interval_points: Stat = omit_when_none()
+    error_mix: ErrorMix | None = omit_when_none()
 
 
 # -- the graph -------------------------------------------------------------------------------
@@ -495,8 +625,29 @@ class Stability(_Record):
 
 
 @record
+class ScoreChange(_Record):
+    """A score metric (``roc_auc`` or ``brier``) of two releases on the same rows: the
+    paired change (after minus before), its interval and two-sided p-value, the
+    Benjamini–Hochberg adjusted p-value across regions and a verdict; when the test is not
+    defined (one class only), the numbers are ``None`` and ``note`` says why."""
+
+    metric: str
+    before: Stat
+    after: Stat
+    change: Stat
+    low: Stat
+    high: Stat
+    p_value: Stat
+    p_adjusted: Stat
+    verdict: str
+    note: str
+
+
+@record
 class RegionChange(_Record):
-    """A region's loss before and after a release, with McNemar's or a paired test."""
+    """A region's loss before and after a release, with McNemar's or a paired test (and,
+    for classification, the paired tests of ROC AUC and Brier score; absent from bundles
+    written before they were recorded)."""
 
     region: int
     rows: int
@@ -510,6 +661,8 @@ class RegionChange(_Record):
     p_value: Stat
     p_adjusted: Stat
     verdict: str
+    roc_auc: ScoreChange | None = omit_when_none()
+    brier: ScoreChange | None = omit_when_none()
 
 
 @record
@@ -620,6 +773,8 @@ class Analysis(_Record):
     comparison: Comparison | None = None
     schema: int = SCHEMA
     extra: dict[str, Any] = field(default_factory=dict)
+    #: classification: the outcome table (absent from bundles written before it was)
+    outcomes: Outcomes | None = omit_when_none()
 
 
 # -- sign-offs of a published release ---------------------------------------------------
