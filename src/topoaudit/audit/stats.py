@@ -7,6 +7,7 @@ against scipy or statsmodels.
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats as _st
@@ -15,10 +16,14 @@ from topoaudit._validation import random_generator
 from topoaudit.errors import ParameterError
 
 __all__ = [
+    "PairedTest",
     "benjamini_hochberg",
     "binomial_upper_test",
     "bootstrap_interval",
+    "delong_components",
+    "delong_test",
     "mcnemar_exact",
+    "paired_mean_test",
     "permutation_upper_test",
     "wilson_interval",
 ]
@@ -171,3 +176,114 @@ def bootstrap_interval(
     alpha = (1.0 - confidence) / 2.0
     lo, hi = np.quantile(values, [alpha, 1.0 - alpha])
     return float(lo), float(hi)
+
+
+@dataclass(frozen=True)
+class PairedTest:
+    """A paired comparison of two measures on the same rows: each one's value, the
+    difference ``after - before``, its interval and its two-sided p-value."""
+
+    before: float
+    after: float
+    change: float
+    low: float
+    high: float
+    p_value: float
+
+
+def delong_components(
+    y: np.ndarray, scores: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The ROC AUCs of ``k`` scores and DeLong's structural components (DeLong, DeLong and
+    Clarke-Pearson, Biometrics 1988), computed from midranks (Sun and Xu, IEEE Signal
+    Processing Letters 2014, Algorithm 2).
+
+    ``scores`` has one column per score; with ``m`` positive rows (``y == 1``) and ``n``
+    negative rows, for each score the AUC is ``(sum of the positives' midranks among all
+    rows - m(m+1)/2) / (m n)``, and the components are
+    ``V10_i = (T_Z(x_i) - T_X(x_i)) / n`` for each positive ``x_i`` and
+    ``V01_j = 1 - (T_Z(y_j) - T_Y(y_j)) / m`` for each negative ``y_j``, where ``T_Z``,
+    ``T_X`` and ``T_Y`` are midranks among all rows, among the positives and among the
+    negatives. ``V10_i`` is the share of negatives scored below ``x_i`` (ties count half);
+    ``V01_j`` the share of positives scored above ``y_j``.
+
+    Returns ``(auc, v10, v01)`` with shapes ``(k,)``, ``(m, k)`` and ``(n, k)``.
+    """
+    y = np.asarray(y)
+    z = np.asarray(scores, dtype=float)
+    if z.ndim == 1:
+        z = z[:, None]
+    pos = y == 1
+    m, n = int(pos.sum()), int((~pos).sum())
+    x, w = z[pos], z[~pos]
+    t_z = _st.rankdata(np.vstack([x, w]), axis=0)
+    t_x = _st.rankdata(x, axis=0)
+    t_y = _st.rankdata(w, axis=0)
+    auc = (t_z[:m].sum(axis=0) - m * (m + 1) / 2.0) / (m * n)
+    v10 = (t_z[:m] - t_x) / n
+    v01 = 1.0 - (t_z[m:] - t_y) / m
+    return auc, v10, v01
+
+
+def delong_test(
+    y: np.ndarray, before: np.ndarray, after: np.ndarray, *, confidence: float = 0.95
+) -> PairedTest:
+    """DeLong's test of the difference of two correlated ROC AUCs (DeLong, DeLong and
+    Clarke-Pearson, 1988) on the same rows.
+
+    With the components of :func:`delong_components`, ``S = S10 / m + S01 / n`` where
+    ``S10`` and ``S01`` are the sample covariance matrices (divisor ``m - 1``, ``n - 1``) of
+    the ``V10`` and ``V01`` columns; the difference ``d = AUC_after - AUC_before`` has
+    variance ``S_aa + S_bb - 2 S_ab``, the interval is ``d ± z se`` and the two-sided
+    p-value ``2 (1 - Φ(|d| / se))``. With a variance of 0 the p-value is 1 when ``d = 0``
+    and 0 otherwise. Needs at least two rows of each class.
+    """
+    y = np.asarray(y)
+    m = int(np.sum(y == 1))
+    n = int(y.size - m)
+    if m < 2 or n < 2:
+        msg = f"delong_test needs at least 2 rows of each class; got {m} positive, {n} negative."
+        raise ParameterError(msg)
+    auc, v10, v01 = delong_components(y, np.column_stack([before, after]))
+    s = np.cov(v10, rowvar=False) / m + np.cov(v01, rowvar=False) / n
+    var = max(float(s[0, 0] + s[1, 1] - 2.0 * s[0, 1]), 0.0)
+    return _normal_test(float(auc[0]), float(auc[1]), var, confidence)
+
+
+def _normal_test(before: float, after: float, var: float, confidence: float) -> PairedTest:
+    d = after - before
+    se = float(np.sqrt(var))
+    z = float(_st.norm.ppf(0.5 + confidence / 2.0))
+    p = _two_sided(d, se, _st.norm.sf)
+    return PairedTest(before, after, d, d - z * se, d + z * se, p)
+
+
+def _two_sided(change: float, se: float, sf: Callable[[float], float]) -> float:
+    """``2 sf(|change| / se)``; with ``se = 0``, 1 when ``change = 0`` and 0 otherwise."""
+    if se > 0:
+        return float(2.0 * sf(abs(change) / se))
+    return 1.0 if change == 0 else 0.0
+
+
+def paired_mean_test(
+    before: np.ndarray, after: np.ndarray, *, confidence: float = 0.95
+) -> PairedTest:
+    """Paired t-test of the mean of per-row values (Student, 1908): ``before`` and
+    ``after`` are each row's loss under two models (a squared error for the Brier score).
+
+    With ``d_i = after_i - before_i``, the change is ``mean(d)``, the interval
+    ``mean(d) ± t_{n-1} sd(d) / sqrt(n)`` and the p-value two-sided from Student's t with
+    ``n - 1`` degrees of freedom (the same as ``scipy.stats.ttest_rel``). When every
+    ``d_i`` is equal the p-value is 1 if they are 0 and 0 otherwise. Needs two rows.
+    """
+    a = np.asarray(before, dtype=float)
+    b = np.asarray(after, dtype=float)
+    n = a.size
+    if n < 2:
+        raise ParameterError(f"paired_mean_test needs at least 2 rows; got {n}.")
+    d = b - a
+    mean = float(d.mean())
+    se = float(d.std(ddof=1) / np.sqrt(n))
+    t = float(_st.t.ppf(0.5 + confidence / 2.0, n - 1))
+    p = _two_sided(mean, se, lambda v: _st.t.sf(v, n - 1))
+    return PairedTest(float(a.mean()), float(b.mean()), mean, mean - t * se, mean + t * se, p)
