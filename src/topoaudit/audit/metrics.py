@@ -8,6 +8,10 @@ error. Regression: MAE, RMSE, mean residual (bias) and R².
 
 Proportions carry Wilson score intervals (:func:`~topoaudit.audit.stats.wilson_interval`);
 the other metrics carry seeded percentile-bootstrap intervals when asked for.
+
+For a classification audit, :func:`error_mix` splits a set of rows' errors into false
+positives and false negatives, and :func:`outcome_table` lays out the release's decisions
+on every row beside the rules that use no information about a row.
 """
 
 from __future__ import annotations
@@ -18,16 +22,21 @@ import numpy as np
 from sklearn.metrics import roc_auc_score
 
 from topoaudit.audit.stats import bootstrap_interval, wilson_interval
-from topoaudit.bundle.records import Estimate
+from topoaudit.bundle.records import ErrorMix, Estimate, NoSkill, Outcomes, ThresholdRow
 
 __all__ = [
     "Estimate",
     "binary_metrics",
     "calibration_bins",
+    "error_mix",
     "expected_calibration_error",
     "log_loss",
+    "outcome_table",
     "regression_metrics",
 ]
+
+#: the thresholds of the outcome table: 0.05 to 0.95 by 0.05 (and the release's own)
+TABLE_THRESHOLDS = tuple(round(0.05 * k, 2) for k in range(1, 20))
 
 NAN = float("nan")
 
@@ -210,3 +219,90 @@ def regression_metrics(
     out: dict[str, Estimate] = {"rows": Estimate(float(n))}
     out.update(_estimates(point, n, confidence, bootstrap, random_state))
     return out
+
+
+def error_mix(y: np.ndarray, p: np.ndarray, threshold: float) -> ErrorMix:
+    """The errors of the decisions ``p >= threshold`` against ``y`` (0/1): false positives
+    and false negatives, as counts and as shares of the errors.
+
+    Examples
+    --------
+    >>> m = error_mix(np.array([0, 0, 1, 1]), np.array([0.9, 0.8, 0.1, 0.7]), 0.5)
+    >>> m.errors, m.false_positives, m.false_positive_share
+    (3, 2, 0.6666666666666666)
+    """
+    y = np.asarray(y)
+    pred = np.asarray(p, dtype=float) >= threshold
+    fp = int(np.sum(pred & (y == 0)))
+    fn = int(np.sum(~pred & (y == 1)))
+    errors = fp + fn
+    return ErrorMix(errors, fp, fn, _safe_ratio(fp, errors), _safe_ratio(fn, errors))
+
+
+def _decisions(y: np.ndarray, pred: np.ndarray) -> dict[str, Any]:
+    """Share flagged, precision, recall and error rate of the decisions ``pred``."""
+    n, pos = y.size, y == 1
+    tp = int(np.sum(pred & pos))
+    flagged = int(pred.sum())
+    return {
+        "flagged_share": _safe_ratio(flagged, n),
+        "precision": _safe_ratio(tp, flagged),
+        "recall": _safe_ratio(tp, int(pos.sum())),
+        "error_rate": _safe_ratio(int(np.sum(pred != pos)), n),
+    }
+
+
+def _no_skill(y: np.ndarray, threshold: float) -> tuple[NoSkill, ...]:
+    """Never flag, always flag, and the base rate as every row's score (whose decisions
+    at ``threshold`` are one of the other two)."""
+    n = y.size
+    rate = float(y.mean()) if n else NAN
+    never = NoSkill(
+        "never flag", **_decisions(y, np.zeros(n, dtype=bool)), brier=None, log_loss=None
+    )
+    always = NoSkill(
+        "always flag", **_decisions(y, np.ones(n, dtype=bool)), brier=None, log_loss=None
+    )
+    constant = np.full(n, rate)
+    base = NoSkill(
+        "base rate as the score",
+        **_decisions(y, constant >= threshold),
+        brier=float(np.mean((constant - y) ** 2)) if n else NAN,
+        log_loss=log_loss(y, constant) if n else NAN,
+    )
+    return never, always, base
+
+
+def outcome_table(
+    y: np.ndarray, p: np.ndarray, threshold: float, thresholds: tuple[float, ...] = TABLE_THRESHOLDS
+) -> Outcomes:
+    """The outcome table of scores ``p`` against outcomes ``y`` (0/1) at the release's
+    ``threshold`` (a row is flagged when its score is at least the threshold): base rate,
+    share flagged, confusion counts, precision, recall, error rate, Brier score and log
+    loss; the no-skill rules (never flag: error rate = base rate; always flag: error rate =
+    1 - base rate; the base rate as a constant score: Brier score ``r(1 - r)`` and log loss
+    ``-r log r - (1 - r) log(1 - r)``); and the decisions at each of ``thresholds`` and at
+    the release's own (marked ``release``)."""
+    y = np.asarray(y, dtype=float)
+    p = np.asarray(p, dtype=float)
+    n = y.size
+    pred, pos = p >= threshold, y == 1
+    own = _decisions(y, pred)
+    rows = []
+    for t in sorted({*thresholds, float(threshold)}):
+        flagged = p >= t
+        rows.append(ThresholdRow(t, t == threshold, int(flagged.sum()), **_decisions(y, flagged)))
+    return Outcomes(
+        rows=n,
+        threshold=float(threshold),
+        base_rate=float(y.mean()) if n else NAN,
+        true_positives=int(np.sum(pred & pos)),
+        false_positives=int(np.sum(pred & ~pos)),
+        false_negatives=int(np.sum(~pred & pos)),
+        true_negatives=int(np.sum(~pred & ~pos)),
+        brier=float(np.mean((p - y) ** 2)) if n else NAN,
+        log_loss=log_loss(y, p) if n else NAN,
+        no_skill=_no_skill(y, threshold),
+        thresholds=tuple(rows),
+        **own,
+    )
