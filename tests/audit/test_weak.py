@@ -13,6 +13,7 @@ from topoaudit.audit.weak import (
     binary_losses,
     find_weak_regions,
     merge_confirmed,
+    rescaling_factor,
     scan_statistic,
     split_halves,
 )
@@ -115,3 +116,31 @@ def test_a_region_too_small_to_confirm_is_reported_untested():
     assert small
     assert all("fewer than 30: not tested" in f.note for f in small)
     assert all(not f.confirmed for f in small)
+
+
+def test_each_half_records_its_rescaling_factor_and_the_unscaled_promise():
+    # Hand computation (common practice, no source): every row is promised an error rate
+    # of 0.2, so the promise before rescaling is 0.2 in any region, the factor of a half
+    # is its observed errors over 0.2 times its rows, and the rate shown as what the
+    # scores promise is 0.2 times that factor.
+    g, loss, _ = _planted(range(10, 16))
+    discovery = split_halves(g.n_rows, None, 0)
+    found = find_weak_regions([SearchGraph("chain", g, "grow")], [loss], discovery)
+    assert found
+    for half, mask in (("discovery", discovery), ("confirmation", ~discovery)):
+        factor = loss.observed[mask].sum() / (0.2 * mask.sum())
+        for f in found:
+            h = getattr(f, half)
+            assert h.scale == pytest.approx(factor, rel=1e-12)
+            assert h.promised_rate == pytest.approx(0.2, rel=1e-12)
+            assert h.expected_rate == pytest.approx(0.2 * factor, rel=1e-12)
+
+
+def test_the_rescaling_factor_by_hand():
+    # observed 1 + 0 + 1 + 1 = 3 errors where 0.1 + 0.2 + 0.3 + 0.4 = 1.0 were promised
+    # (common practice, no source); the fifth row lies outside the half
+    loss = Losses("error", np.array([1.0, 0.0, 1.0, 1.0, 1.0]), np.array([0.1, 0.2, 0.3, 0.4, 0.5]))
+    half = np.array([True, True, True, True, False])
+    assert rescaling_factor(loss, half) == pytest.approx(3.0)
+    nothing_promised = Losses("error", np.ones(2), np.zeros(2))
+    assert np.isnan(rescaling_factor(nothing_promised, np.ones(2, dtype=bool)))

@@ -17,7 +17,10 @@ Every classifier errs more near its decision boundary, so excess is measured aga
 what the scores promise, and on each half the expected losses are rescaled so their total
 equals the observed total there: the scan conditions on the total, as Kulldorff's scan
 statistic does (Kulldorff, 1997). A release that errs as often as its scores say, or
-more often by the same factor everywhere, then shows no excess anywhere.
+more often by the same factor everywhere, then shows no excess anywhere. Each region's
+half records that factor (``scale``: the half's observed total over its promised total)
+and the rate its scores promise before it (``promised_rate``), beside the rescaled
+``expected_rate``.
 
 **Discovery.** On the discovery half, for a set ``S`` of nodes with observed loss ``O``
 and rescaled expected loss ``E`` out of a total ``N``, the Poisson scan statistic is
@@ -56,6 +59,7 @@ __all__ = [
     "binary_losses",
     "find_weak_regions",
     "regression_losses",
+    "rescaling_factor",
     "scan_statistic",
     "split_halves",
 ]
@@ -186,9 +190,17 @@ def _scaled(losses: Losses, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, f
     """Observed and rescaled expected loss on the rows of ``mask`` (zero elsewhere)."""
     obs = np.where(mask, losses.observed, 0.0)
     exp = np.where(mask, losses.expected, 0.0)
-    total_o, total_e = obs.sum(), exp.sum()
-    exp = exp * (total_o / total_e) if total_e > 0 else exp
-    return obs, exp, float(total_o)
+    factor = rescaling_factor(losses, mask)
+    exp = exp * factor if np.isfinite(factor) else exp
+    return obs, exp, float(obs.sum())
+
+
+def rescaling_factor(losses: Losses, mask: np.ndarray) -> float:
+    """The factor the promised losses of the rows of ``mask`` (a half) are multiplied by:
+    their observed total over their promised total (NaN when nothing is promised there)."""
+    total_o = np.where(mask, losses.observed, 0.0).sum()
+    total_e = np.where(mask, losses.expected, 0.0).sum()
+    return float(total_o / total_e) if total_e > 0 else float("nan")
 
 
 def _grow(
@@ -371,8 +383,18 @@ def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
     return inter / union if union else 0.0
 
 
-def _estimate(rows: np.ndarray, obs: np.ndarray, exp: np.ndarray) -> HalfEstimate:
-    return HalfEstimate.of(int(rows.size), float(obs[rows].sum()), float(exp[rows].sum()))
+def _estimate(
+    rows: np.ndarray, obs: np.ndarray, exp: np.ndarray, loss: Losses, half: np.ndarray
+) -> HalfEstimate:
+    """A region on one half: observed and rescaled expected totals, the half's rescaling
+    factor and the promised (unscaled) total."""
+    return HalfEstimate.of(
+        int(rows.size),
+        float(obs[rows].sum()),
+        float(exp[rows].sum()),
+        scale=rescaling_factor(loss, half),
+        promised=float(loss.expected[rows].sum()),
+    )
 
 
 def find_weak_regions(
@@ -413,7 +435,7 @@ def find_weak_regions(
                 if np.isfinite(threshold):
                     all_rows = all_rows[search.lens[all_rows] >= threshold]
                 c_rows = all_rows[confirmation[all_rows]]
-                conf = _estimate(c_rows, c_obs, c_exp)
+                conf = _estimate(c_rows, c_obs, c_exp, loss, confirmation)
                 tested = conf.rows >= min_rows
                 p = float("nan")
                 if tested and loss.counts:
@@ -437,7 +459,7 @@ def find_weak_regions(
                         rows=all_rows,
                         llr=place.llr,
                         lens_threshold=threshold,
-                        discovery=_estimate(d_rows, d_obs, d_exp),
+                        discovery=_estimate(d_rows, d_obs, d_exp, loss, discovery),
                         confirmation=conf,
                         tested=tested,
                         p_value=p,
