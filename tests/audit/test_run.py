@@ -7,10 +7,13 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
+from sklearn.metrics import roc_auc_score
+from statsmodels.stats.proportion import proportion_confint
 
 from reference_checks.planted_pockets import simulate
 from topoaudit.audit.run import run_audit
 from topoaudit.bundle.files import canonical_json
+from topoaudit.bundle.records import Analysis
 from topoaudit.cli import main
 from topoaudit.config import load_config
 
@@ -79,7 +82,8 @@ def test_the_island_pocket_is_a_confirmed_weak_region(audit, project):
     assert w.confirmed and w.p_adjusted <= 0.05
     assert w.confirmation.rows >= 30
     assert w.description.rule.text != "no rule"
-    assert w.local_model.verdict in ("local model better", "no clear gain")
+    assert w.local_model.verdict in ("local model better", "recalibration enough", "no clear gain")
+    assert w.local_model.recalibration == "Platt scaling" and w.local_model.model == "logistic"
     assert 0.0 <= w.stability <= 1.0
 
 
@@ -165,3 +169,83 @@ def test_a_regression_audit_runs_end_to_end_and_finds_the_residual_pocket(tmp_pa
 
     page = build_page(json.loads(canonical_json(r)), audit.graph).markdown
     assert "mean absolute error" in page and "## Cautions" in page
+
+
+def _rows_with_membership(audit, project):
+    """The data rows in the audit's order, with their region, weak regions and half."""
+    folder, _ = project
+    frame = pd.read_csv(folder / "rows.csv")
+    return audit.members.merge(frame, left_on="id", right_on="row_id", validate="1:1")
+
+
+def test_a_weak_region_quotes_the_wilson_interval_of_its_confirmation_half(audit, project):
+    rows = _rows_with_membership(audit, project)
+    t = audit.analysis.provenance.threshold
+    for w in audit.analysis.weak_regions:
+        half = rows[
+            rows.weak_regions.map(lambda ids, w=w: w.id in ids) & (rows.half == "confirmation")
+        ]
+        errors = int(((half.score_new >= t) != (half.outcome == 1)).sum())
+        # reference: statsmodels proportion_confint(method="wilson")
+        lo, hi = proportion_confint(errors, len(half), alpha=0.05, method="wilson")
+        e = w.confirmation_error_rate
+        assert len(half) == w.confirmation.rows
+        assert e.value == pytest.approx(errors / len(half))
+        assert (e.low, e.high) == pytest.approx((lo, hi), abs=1e-9)
+        assert w.confirmation_interval_points == pytest.approx(100 * (hi - lo), abs=1e-7)
+
+
+def test_regions_and_weak_regions_record_their_error_mix(audit, project):
+    rows = _rows_with_membership(audit, project)
+    t = audit.analysis.provenance.threshold
+    rows["fp"] = (rows.score_new >= t) & (rows.outcome == 0)
+    rows["fn"] = (rows.score_new < t) & (rows.outcome == 1)
+    counts = rows.groupby("region")[["fp", "fn"]].sum()  # recounted with pandas
+    for r in audit.analysis.regions:
+        fp, fn = int(counts.loc[r.id, "fp"]), int(counts.loc[r.id, "fn"])
+        assert (r.error_mix.false_positives, r.error_mix.false_negatives) == (fp, fn)
+        if fp + fn:
+            assert r.error_mix.false_positive_share == pytest.approx(fp / (fp + fn))
+        assert {"roc_auc", "brier", "mean_score", "positive_rate"} <= set(r.metrics)
+    w = audit.analysis.weak_regions[0]
+    inside = rows[rows.weak_regions.map(lambda ids: "W1" in ids)]
+    assert w.error_mix.errors == int(inside.fp.sum() + inside.fn.sum())
+
+
+def test_the_outcome_table_and_the_score_comparison_are_in_the_analysis(audit, project):
+    rows = _rows_with_membership(audit, project)
+    r = audit.analysis
+    assert r.outcomes.base_rate == pytest.approx(rows.outcome.mean())
+    assert r.outcomes.rows == len(rows)
+    auc = r.comparison.overall.roc_auc
+    # the point estimates: scikit-learn's roc_auc_score on every row
+    assert auc.before == pytest.approx(roc_auc_score(rows.outcome, rows.score_old))
+    assert auc.after == pytest.approx(roc_auc_score(rows.outcome, rows.score_new))
+    assert all(c.roc_auc is not None and c.brier is not None for c in r.comparison.regions)
+
+
+def test_a_bundle_written_before_the_new_fields_still_reads(audit, tmp_path):
+    # strict reading of a versioned schema with optional additions (common practice, no
+    # source): the keys added later are dropped from a written bundle, which reads back
+    # with None in their place
+    folder = audit.write(tmp_path / "bundle")
+    doc = json.loads((folder / "analysis.json").read_text(encoding="utf-8"))
+    doc.pop("outcomes")
+    for w in doc["weak_regions"]:
+        for key in ("confirmation_error_rate", "confirmation_interval_points", "error_mix"):
+            w.pop(key)
+        for key in ("constant_loss", "recalibrated_loss", "recalibration"):
+            w["local_model"].pop(key)
+        for key in ("local_vs_recalibrated", "recalibrated_vs_release"):
+            w["local_model"].pop(key)
+        for half in (w["discovery"], w["confirmation"]):
+            half.pop("scale"), half.pop("promised_rate")
+    for region in doc["regions"]:
+        region.pop("error_mix")
+    for c in (doc["comparison"]["overall"], *doc["comparison"]["regions"]):
+        c.pop("roc_auc"), c.pop("brier")
+    old = Analysis.from_dict(doc, "analysis.json:")
+    assert old.outcomes is None and old.regions[0].error_mix is None
+    assert old.weak_regions[0].local_model.recalibrated_loss is None
+    assert old.weak_regions[0].confirmation.scale is None
+    assert old.comparison.overall.roc_auc is None

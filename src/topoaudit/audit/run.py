@@ -25,6 +25,7 @@ from sklearn.preprocessing import StandardScaler
 from topoaudit.audit.compare import compare_releases
 from topoaudit.audit.describe import describe_region
 from topoaudit.audit.local import local_model_test
+from topoaudit.audit.metrics import error_mix, outcome_table
 from topoaudit.audit.regions import Partition, partition_graph
 from topoaudit.audit.search import SearchGraph, SearchSettings, search_graphs
 from topoaudit.audit.shape import describe_shape, place_on_features
@@ -91,6 +92,13 @@ class AuditInputs:
         r = release or self.release
         y, score = self.ds.target[rows], self.ds.scores[r.name][rows]
         return self.task.metrics(y, score, r.threshold, bootstrap=bootstrap, random_state=self.seed)
+
+    def error_mix(self, rows: np.ndarray) -> rec.ErrorMix | None:
+        """The false positives and false negatives among the errors on ``rows``
+        (classification only)."""
+        if not self.task.has_threshold:
+            return None
+        return error_mix(self.ds.target[rows], self.score[rows], self.release.threshold)
 
 
 @dataclass(frozen=True, eq=False)
@@ -240,29 +248,39 @@ def candidate_record(f: CandidateRegion) -> rec.Candidate:
     )
 
 
+def _points(interval: rec.Estimate | None) -> float | None:
+    """The width of an interval in points (hundredths), if it has one."""
+    if interval is None or interval.low is None or interval.high is None:
+        return None
+    return 100 * (interval.high - interval.low)
+
+
 def weak_region(
     inp: AuditInputs,
     i: int,
     f: CandidateRegion,
     views: list[rec.ShapeFeatureRecord],
     graph: MapperGraph,
+    discovery: np.ndarray | None = None,
 ) -> rec.WeakRegion:
     """Weak region ``W{i}``: its metrics, who is in it, and whether a local model does
-    better there (its stability is filled in by :func:`with_stability`)."""
+    better there (its stability is filled in by :func:`with_stability`). With the
+    ``discovery`` half's mask, a classification also gets the error rate of its rows on
+    the confirmation half, with its Wilson interval."""
     ds, a = inp.ds, inp.config.audit
     mask = np.zeros(ds.n_rows, dtype=bool)
     mask[f.rows] = True
     metrics = inp.metrics(f.rows)
-    interval = metrics.get(inp.task.interval_metric) if inp.task.interval_metric else None
+    name = inp.task.interval_metric
+    interval = metrics.get(name) if name else None
+    confirmed = None
+    if name and discovery is not None:
+        confirmed = inp.metrics(f.rows[~discovery[f.rows]]).get(name)
     return rec.WeakRegion(
         **vars(candidate_record(f)),
         id=f"W{i}",
         share_of_rows=f.rows.size / ds.n_rows,
-        error_interval_points=(
-            100 * (interval.high - interval.low)
-            if interval is not None and interval.low is not None
-            else None
-        ),
+        error_interval_points=_points(interval),
         metrics=metrics,
         description=describe_region(mask, ds.frame, ds.X, ds.feature_names, random_state=inp.seed),
         local_model=local_model_test(
@@ -276,7 +294,25 @@ def weak_region(
         ),
         on_feature=place_on_features(f.rows, views, graph),
         stability=None,
+        confirmation_error_rate=confirmed,
+        confirmation_interval_points=_points(confirmed),
+        error_mix=inp.error_mix(f.rows),
     )
+
+
+def weak_regions(
+    inp: AuditInputs, found: Search, views: list[rec.ShapeFeatureRecord], graph: MapperGraph
+) -> list[rec.WeakRegion]:
+    """Every confirmed weak region, described (:func:`weak_region`), in order."""
+    weak = []
+    for i, f in enumerate(found.weak, start=1):
+        inp.step(
+            5,
+            f"describing weak region W{i} ({i} of {len(found.weak)}) and testing a local model "
+            "there",
+        )
+        weak.append(weak_region(inp, i, f, views, graph, found.discovery))
+    return weak
 
 
 def with_stability(
@@ -335,6 +371,7 @@ def region_records(inp: AuditInputs, partition: Partition) -> tuple[rec.RegionRe
                 nodes=int(np.sum(partition.node_region == r)),
                 metrics=inp.metrics(rows),
                 calibration=inp.task.calibration(inp.ds.target[rows], inp.score[rows]),
+                error_mix=inp.error_mix(rows),
             )
         )
     return tuple(out)
@@ -381,7 +418,8 @@ def graph_document(
 def comparison(
     inp: AuditInputs, partition: Partition, losses: list[Losses]
 ) -> rec.Comparison | None:
-    """The release against the one before it on the same rows, region by region."""
+    """The release against the one before it on the same rows, region by region: its
+    decisions (or squared errors) and, for classification, its ROC AUC and Brier score."""
     base = inp.baseline
     if base is None:
         return None
@@ -395,6 +433,8 @@ def comparison(
         candidate=inp.release.name,
         counts=inp.task.counts,
         fdr=inp.config.audit.fdr,
+        y=y if inp.task.has_threshold else None,
+        scores=(inp.ds.scores[base.name], inp.score),
     )
     return rec.Comparison(
         baseline=comp.baseline,
@@ -422,6 +462,14 @@ def members_table(
             "half": np.where(found.discovery, "discovery", "confirmation"),
         }
     )
+
+
+def outcomes(inp: AuditInputs) -> rec.Outcomes | None:
+    """The outcome table of a classification on every row: base rate, confusion counts,
+    the no-skill rules and the decisions at other thresholds (none for a regression)."""
+    if not inp.task.has_threshold:
+        return None
+    return outcome_table(inp.ds.target, inp.score, inp.release.threshold)
 
 
 # -- the records around the findings ----------------------------------------------------------
@@ -517,6 +565,7 @@ def run_audit(
     views, shape = shape_of(inp, builder)
     inp.step(3, "computing metrics")
     overall = inp.metrics(np.arange(ds.n_rows), bootstrap=200)
+    table = outcomes(inp)
     inp.step(4, "searching for weak regions (discovery half)")
     found = search(inp)
     tested = sum(f.tested for f in found.candidates)
@@ -524,15 +573,7 @@ def run_audit(
         4,
         f"{plural(tested, 'candidate')} tested, {plural(len(found.weak), 'weak region')} confirmed",
     )
-    weak = []
-    for i, f in enumerate(found.weak, start=1):
-        inp.step(
-            5,
-            f"describing weak region W{i} ({i} of {len(found.weak)}) and testing a local model "
-            "there",
-        )
-        weak.append(weak_region(inp, i, f, views, graph))
-    weak, stability = with_stability(inp, found, weak)
+    weak, stability = with_stability(inp, found, weak_regions(inp, found, views, graph))
     inp.step(7, "the shown graph at other cover settings")
     grid = settings_grid(inp, builder)
     regions = region_records(inp, partition)
@@ -561,6 +602,7 @@ def run_audit(
         stability=stability,
         summary=summary(found, weak, regions),
         comparison=comparison(inp, partition, found.losses),
+        outcomes=table,
     )
     return Audit(
         analysis=analysis,
