@@ -127,6 +127,7 @@ def test_the_same_sign_off_again_is_recorded_once(archive):
 
 def test_an_interrupted_sign_off_is_a_leftover_that_the_next_one_removes(archive):
     folder = archive / MODEL / "2026.2"
+    first = _sign(folder)
     work = folder / ".signoffs.partial-abc123"
     (work / "signoffs").mkdir(parents=True)
     (work / "signoffs" / "0001.json").write_text("{}")
@@ -136,7 +137,7 @@ def test_an_interrupted_sign_off_is_a_leftover_that_the_next_one_removes(archive
         ("leftover", f"{MODEL}/2026.2/.signoffs.partial-abc123")
     ]
     assert bundle_findings(folder) == []
-    _sign(folder)
+    assert _sign(folder) == first  # run again after it was killed: recorded once, swept
     assert not work.exists()
     assert verify_archive(archive).findings == []
 
