@@ -92,8 +92,6 @@ def stability_runs(
             mine = position[w[position[w] >= 0]]
             found.append(any(_jaccard(mine, f.rows) >= match_jaccard for f in confirmed))
         out.append(
-            Rerun(
-                label, kind, s.lens_intervals, s.lens_overlap, len(confirmed), tuple(found)
-            )
+            Rerun(label, kind, s.lens_intervals, s.lens_overlap, len(confirmed), tuple(found))
         )
     return out
