@@ -48,6 +48,8 @@ def _plant(a: dict, g: dict, rows: int) -> None:
     w["confirmation"].update(rows=rows, ratio=MARK, observed_rate=MARK)
     w["discovery"].update(rows=rows, ratio=MARK, observed_rate=MARK)
     w["metrics"]["error_rate"]["value"] = MARK
+    w["confirmation_error_rate"]["value"] = MARK
+    a["outcomes"]["thresholds"][-1].update(flagged=rows, precision=MARK)
     w["description"]["contrasts"][0]["region_mean"] = MARK
     a["comparison"]["regions"][0].update(rows=rows, before=MARK, after=MARK)
     c = a["candidates"][0]

@@ -78,6 +78,18 @@ def _halves(w: dict[str, Any]) -> None:
             w[half] = _blank(w[half], _SIZES)
     if isinstance(w.get("confirmation"), dict) and is_small(w["confirmation"].get("rows")):
         w["effect"] = None
+        if w.get("confirmation_error_rate") is not None:
+            w["confirmation_error_rate"] = _blank(w["confirmation_error_rate"], _SIZES)
+        if "confirmation_interval_points" in w:
+            w["confirmation_interval_points"] = None
+
+
+def _thresholds(outcomes: dict[str, Any] | None) -> None:
+    """A threshold at which fewer than MIN_CELL_ROWS rows are flagged keeps its counts and
+    loses its precision (the outcome rate of those few rows)."""
+    for row in (outcomes or {}).get("thresholds") or []:
+        if is_small(row.get("flagged")):
+            row["precision"] = None
 
 
 def public_view(analysis: Analysis | dict[str, Any]) -> Analysis:
@@ -113,6 +125,7 @@ def _suppressed(analysis: Analysis | dict[str, Any]) -> dict[str, Any]:
         _halves(c)
     if out.get("comparison"):
         _suppress(out["comparison"].get("regions"))
+    _thresholds(out.get("outcomes"))
     shape = (out.get("graph") or {}).get("shape") or {}
     for f in shape.get("features") or []:
         if is_small(f.get("rows")):
