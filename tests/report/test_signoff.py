@@ -302,7 +302,7 @@ def test_a_sign_off_of_another_release_copied_in_is_reported(archive):
     ]
 
 
-def test_a_bundle_changed_after_its_sign_off_is_reported_by_its_files_and_sign_offs(archive):
+def test_a_bundle_changed_after_its_sign_off_is_reported_by_its_files_not_its_sign_offs(archive):
     folder = _signed_twice(archive)
     page = folder / "page.md"
     page.write_text(page.read_text() + "\nA sentence nobody reviewed.\n")
