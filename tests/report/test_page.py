@@ -18,6 +18,11 @@ def _leaves(value, numbers, strings):
     if isinstance(value, dict):
         for v in value.values():
             _leaves(v, numbers, strings)
+        # a change is shown as the difference of the two numbers as shown, so that the
+        # numbers on a page add up (the page's one rounding rule)
+        before, after = value.get("before"), value.get("after")
+        if isinstance(before, float) and isinstance(after, float):
+            numbers.append(round(round(after, 3) - round(before, 3), 3))
     elif isinstance(value, list):
         for v in value:
             _leaves(v, numbers, strings)

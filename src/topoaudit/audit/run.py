@@ -228,7 +228,15 @@ def search(inp: AuditInputs) -> Search:
     return Search(losses, discovery, settings, graphs, found, merge_confirmed(found))
 
 
-def candidate_record(f: CandidateRegion) -> rec.Candidate:
+def regions_holding(rows: np.ndarray, partition: Partition) -> tuple[rec.RegionShare, ...]:
+    """The regions of the shown graph that hold ``rows``, most rows first (at most 3)."""
+    ids, counts = np.unique(partition.row_region[rows], return_counts=True)
+    order = sorted(zip(counts.tolist(), ids.tolist(), strict=True), key=lambda t: (-t[0], t[1]))
+    sizes = np.bincount(partition.row_region)
+    return tuple(rec.RegionShare(r, n, int(sizes[r])) for n, r in order[:3])
+
+
+def candidate_record(f: CandidateRegion, partition: Partition | None = None) -> rec.Candidate:
     return rec.Candidate(
         graph=f.graph,
         kind=f.kind,
@@ -245,6 +253,7 @@ def candidate_record(f: CandidateRegion) -> rec.Candidate:
         effect=f.effect,
         note=f.note,
         also_found=tuple(f.also_found),
+        regions=regions_holding(f.rows, partition) if partition is not None else None,
     )
 
 
@@ -262,6 +271,7 @@ def weak_region(
     views: list[rec.ShapeFeatureRecord],
     graph: MapperGraph,
     discovery: np.ndarray | None = None,
+    partition: Partition | None = None,
 ) -> rec.WeakRegion:
     """Weak region ``W{i}``: its metrics, who is in it, and whether a local model does
     better there (its stability is filled in by :func:`with_stability`). With the
@@ -277,7 +287,7 @@ def weak_region(
     if name and discovery is not None:
         confirmed = inp.metrics(f.rows[~discovery[f.rows]]).get(name)
     return rec.WeakRegion(
-        **vars(candidate_record(f)),
+        **vars(candidate_record(f, partition)),
         id=f"W{i}",
         share_of_rows=f.rows.size / ds.n_rows,
         error_interval_points=_points(interval),
@@ -301,7 +311,11 @@ def weak_region(
 
 
 def weak_regions(
-    inp: AuditInputs, found: Search, views: list[rec.ShapeFeatureRecord], graph: MapperGraph
+    inp: AuditInputs,
+    found: Search,
+    views: list[rec.ShapeFeatureRecord],
+    graph: MapperGraph,
+    partition: Partition,
 ) -> list[rec.WeakRegion]:
     """Every confirmed weak region, described (:func:`weak_region`), in order."""
     weak = []
@@ -311,7 +325,7 @@ def weak_regions(
             f"describing weak region W{i} ({i} of {len(found.weak)}) and testing a local model "
             "there",
         )
-        weak.append(weak_region(inp, i, f, views, graph, found.discovery))
+        weak.append(weak_region(inp, i, f, views, graph, found.discovery, partition))
     return weak
 
 
@@ -356,8 +370,11 @@ def with_stability(
 # -- regions, nodes, comparison ---------------------------------------------------------------
 
 
-def region_records(inp: AuditInputs, partition: Partition) -> tuple[rec.RegionRecord, ...]:
-    """Each region of the partition with its metrics (and calibration bins)."""
+def region_records(
+    inp: AuditInputs, partition: Partition, losses: list[Losses] | None = None
+) -> tuple[rec.RegionRecord, ...]:
+    """Each region of the partition with its metrics (and calibration bins, and for a
+    classification the error rate its scores promise)."""
     out = []
     first = 0 if (partition.row_region == 0).any() else 1
     for r in range(first, partition.n_regions + 1):
@@ -372,6 +389,9 @@ def region_records(inp: AuditInputs, partition: Partition) -> tuple[rec.RegionRe
                 metrics=inp.metrics(rows),
                 calibration=inp.task.calibration(inp.ds.target[rows], inp.score[rows]),
                 error_mix=inp.error_mix(rows),
+                promised_error_rate=(
+                    float(losses[0].expected[rows].mean()) if losses and inp.task.counts else None
+                ),
             )
         )
     return tuple(out)
@@ -396,6 +416,9 @@ def graph_document(
 ) -> rec.GraphDocument:
     """graph.json: each node's size, region and statistics, and the links."""
     loss = losses[0]
+    # a classification's promise is the scores' own; a regression's reference is the mean
+    # squared error of all rows (its expected loss is 1 per row, before scaling)
+    expected = loss.expected if inp.task.counts else loss.expected * loss.observed.mean()
     nodes = tuple(
         rec.Node(
             id=v,
@@ -404,10 +427,10 @@ def graph_document(
             filter=float(graph.node_filter[v, 0]),
             mean_score=float(inp.score[m].mean()),
             loss=float(loss.observed[m].mean()),
-            expected_loss=float(loss.expected[m].mean()),
+            expected_loss=float(expected[m].mean()),
             weak_regions=tuple(wid for wid, mk in masks.items() if mk[m].mean() >= 0.5),
             positive_rate=inp.task.positive_rate(inp.ds.target[m]),
-            excess=float(loss.observed[m].mean() - loss.expected[m].mean()),
+            excess=float(loss.observed[m].mean() - expected[m].mean()),
         )
         for v, m in enumerate(graph.members)
     )
@@ -573,10 +596,10 @@ def run_audit(
         4,
         f"{plural(tested, 'candidate')} tested, {plural(len(found.weak), 'weak region')} confirmed",
     )
-    weak, stability = with_stability(inp, found, weak_regions(inp, found, views, graph))
+    weak, stability = with_stability(inp, found, weak_regions(inp, found, views, graph, partition))
     inp.step(7, "the shown graph at other cover settings")
     grid = settings_grid(inp, builder)
-    regions = region_records(inp, partition)
+    regions = region_records(inp, partition, found.losses)
     masks = weak_masks(ds.n_rows, weak, found)
     if inp.baseline is not None:
         inp.step(8, f"comparing release {inp.release.name} with {inp.baseline.name}")
@@ -598,7 +621,7 @@ def run_audit(
         search=search_records(inp, found.graphs),
         regions=regions,
         weak_regions=tuple(weak),
-        candidates=tuple(candidate_record(f) for f in found.candidates),
+        candidates=tuple(candidate_record(f, partition) for f in found.candidates),
         stability=stability,
         summary=summary(found, weak, regions),
         comparison=comparison(inp, partition, found.losses),

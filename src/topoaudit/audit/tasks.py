@@ -38,6 +38,8 @@ class Task:
         exact test, else a paired test of mean losses.
     has_threshold : bool
         Whether a release has a decision threshold.
+    loss_words : str
+        What a row's loss averages to, in words ("error rate", "mean squared error").
     """
 
     name: str
@@ -46,6 +48,7 @@ class Task:
     interval_metric: str | None
     counts: bool
     has_threshold: bool
+    loss_words: str
     _metrics: Callable[..., dict[str, Estimate]]
     _losses: Callable[[np.ndarray, np.ndarray, float], list[Losses]]
 
@@ -106,6 +109,7 @@ BINARY = Task(
     interval_metric="error_rate",
     counts=True,
     has_threshold=True,
+    loss_words="error rate",
     _metrics=_binary_metrics,
     _losses=binary_losses,
 )
@@ -122,6 +126,7 @@ REGRESSION = Task(
     interval_metric=None,
     counts=False,
     has_threshold=False,
+    loss_words="mean squared error",
     _metrics=_regression_metrics,
     _losses=lambda y, f, _t: regression_losses(y, f),
 )

@@ -62,6 +62,7 @@ __all__ = [
     "RegionChange",
     "RegionMatch",
     "RegionRecord",
+    "RegionShare",
     "ReleaseChanges",
     "ScoreChange",
     "SearchGraphRecord",
@@ -222,6 +223,8 @@ class _Record:
 
 
 record = dataclass(frozen=True)
+#: a record that extends one whose last fields have defaults: its own fields are keywords
+record_kw = dataclass(frozen=True, kw_only=True)
 
 # -- metrics -------------------------------------------------------------------------------
 
@@ -329,6 +332,18 @@ class RegionRecord(_Record):
     metrics: Metrics
     calibration: tuple[CalibrationBin, ...] | None = omit_when_none()
     error_mix: ErrorMix | None = omit_when_none()
+    #: classification: the error rate its rows' scores promise (mean of each row's
+    #: chance of a wrong decision at the threshold)
+    promised_error_rate: Stat = omit_when_none()
+
+
+@record
+class RegionShare(_Record):
+    """How much of a set of rows lies in one region of the shown graph's partition."""
+
+    region: int
+    rows: int
+    region_rows: int
 
 
 @record
@@ -395,6 +410,9 @@ class Candidate(_Record):
     effect: Stat
     note: str
     also_found: tuple[str, ...]
+    #: the regions of the shown graph that hold its rows, most first (absent in bundles
+    #: written before it was recorded)
+    regions: tuple[RegionShare, ...] | None = omit_when_none()
 
 
 @record
@@ -479,7 +497,7 @@ class OnFeature(_Record):
     at_tip: bool
 
 
-@record
+@record_kw
 class WeakRegion(Candidate):
     """A confirmed weak region: a candidate with its name, metrics, description, local
     model test, place on the shape and stability."""

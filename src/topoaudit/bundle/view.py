@@ -47,7 +47,9 @@ _KEPT = frozenset(
     }
 )
 #: sizes, names and settings, kept at every depth of a small cell
-_SIZES = frozenset({"id", "rows", "region", "name", "folds", "depth", "model", "column"})
+_SIZES = frozenset(
+    {"id", "rows", "region", "region_rows", "name", "folds", "depth", "model", "column"}
+)
 
 
 def is_small(rows: Any) -> bool:

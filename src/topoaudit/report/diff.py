@@ -12,7 +12,7 @@ from typing import Any
 from topoaudit.audit.tasks import TASKS
 from topoaudit.bundle import MIN_CELL_ROWS, is_small
 from topoaudit.bundle.records import RegionBrief, ReleaseChanges
-from topoaudit.report.text import escape, plural, pvalue, rate, signed
+from topoaudit.report.text import change, escape, plural, pvalue, rate
 
 __all__ = ["diff_markdown"]
 
@@ -38,7 +38,7 @@ def diff_markdown(changes: ReleaseChanges | dict[str, Any], *, heading: str = "#
     for m in d.metrics:
         lines.append(
             f"| {escape(NAMES.get(m.metric, m.metric))} | {rate(m.before)} | "
-            f"{rate(m.after)} | {signed(m.change)} |"
+            f"{rate(m.after)} | {change(m.before, m.after)} |"
         )
     lines.append("")
 

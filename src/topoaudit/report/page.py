@@ -49,17 +49,30 @@ from topoaudit.bundle import MIN_CELL_ROWS, public_graph, public_view
 from topoaudit.bundle.files import canonical_json, read_analysis, read_graph
 from topoaudit.bundle.records import (
     Analysis,
+    Comparison,
     Description,
+    Estimate,
     GraphDocument,
-    HalfEstimate,
     LocalModelTest,
     Node,
+    ScoreChange,
     ShapeFeatureRecord,
     ShapeRecord,
     WeakRegion,
 )
 from topoaudit.report import views
+from topoaudit.report.review import (
+    candidates_section,
+    error_mix_sentence,
+    graph_words,
+    half_table,
+    kind_words,
+    outcomes_section,
+    promise_sentence,
+    regions_sentence,
+)
 from topoaudit.report.text import (
+    change,
     code_fence,
     count,
     escape,
@@ -218,11 +231,6 @@ def _small(rows: int | None) -> bool:
     return rows is None or rows < MIN_CELL_ROWS
 
 
-def _half(h: HalfEstimate, value: float | None, digits: int = 3) -> str:
-    """A rate of one half of a weak region, unless that half is a small cell."""
-    return "not shown" if _small(h.rows) else rate(value, digits)
-
-
 def _node_stat(node: Node, value: float | None) -> float | None:
     """A node statistic as drawn: rounded to 3 decimals, left out for small nodes."""
     if _small(node.rows) or value is None or not math.isfinite(float(value)):
@@ -279,14 +287,16 @@ def build_page(a: Analysis | dict[str, Any], graph: GraphDocument | dict[str, An
     charts: Charts = {}
     lines = [
         *_title_section(view, task),
-        *_weak_regions_section(view),
-        *_graph_section(view, shown, charts),
+        *outcomes_section(view.outcomes),
+        *_weak_regions_section(view, task),
+        *candidates_section(view),
+        *_graph_section(view, task, shown, charts),
         *_shape_section(view),
         *_regions_section(view, task, charts),
         *_calibration_section(view, task, charts),
         *_stability_section(view, charts),
         *_local_models_section(view, charts),
-        *_comparison_section(view, charts),
+        *_comparison_section(view, task, charts),
         *_cautions_section(view),
         *_reproduce_section(view),
     ]
@@ -323,10 +333,10 @@ def _title_section(a: Analysis, task: Task) -> list[str]:
         )
         lines.append(f"| {name} | {rate(est.value)}{interval} |")
     lines += [f"| weak regions confirmed | {a.summary.weak_regions} |", ""]
-    return lines
+    return [*lines, *promise_sentence(a, task.counts)]
 
 
-def _weak_regions_section(a: Analysis) -> list[str]:
+def _weak_regions_section(a: Analysis, task: Task) -> list[str]:
     """Where it falls short: each confirmed weak region, or why there is none."""
     lines = ["## Where it falls short", ""]
     if not a.weak_regions:
@@ -337,40 +347,42 @@ def _weak_regions_section(a: Analysis) -> list[str]:
             "",
         ]
     for w in a.weak_regions:
-        lines += _weak_region(w)
+        lines += _weak_region(w, task)
     return lines
 
 
-def _weak_region(w: WeakRegion) -> list[str]:
+def _weak_region(w: WeakRegion, task: Task) -> list[str]:
     """One weak region: where it was found, its two halves, its test, who is in it, its
     local model and its stability."""
-    d, c = w.discovery, w.confirmation
+    c = w.confirmation
     lines = [
         f"### {w.id}: {count(w.rows)} rows ({w.share_of_rows * 100:.1f}% of all), "
-        f"{KIND_WORDS.get(w.kind, escape(w.kind))}",
+        f"{kind_words(w.kind)}{_all_of_one_kind(w)}",
         "",
-        f"Found in the {_graph_words(w.graph)}{_also_found(w)}.",
+        f"Found in the {graph_words(w.graph)}{_also_found(w)}.",
         "",
+        *error_mix_sentence(w.error_mix, w.rows),
+        *regions_sentence(w),
         *_on_feature(w),
-        "| | discovery half | confirmation half |",
-        "|---|---|---|",
-        f"| rows | {count(d.rows)} | {count(c.rows)} |",
-        f"| observed rate | {_half(d, d.observed_rate)} | {_half(c, c.observed_rate)} |",
-        f"| rate the scores promise | {_half(d, d.expected_rate)} | {_half(c, c.expected_rate)} |",
-        f"| observed / promised | {_half(d, d.ratio, 2)} | {_half(c, c.ratio, 2)} |",
-        "",
+        *half_table(w, task.counts),
     ]
-    excess = "not shown" if _small(c.rows) else f"{signed(w.effect)} per row"
+    unit = "wrong decisions" if task.counts else "squared error"
+    excess = "not shown" if _small(c.rows) else f"{signed(w.effect)} {unit} per row"
+    against = (
+        "the promise times the half's factor"
+        if task.counts
+        else "the mean squared error of all rows of the half"
+    )
     lines += [
-        f"Excess on the confirmation half: {excess}; one-sided p-value "
-        f"{pvalue(w.p_value)}, adjusted (Benjamini–Hochberg) {pvalue(w.p_adjusted)}.",
+        f"Excess on the confirmation half (observed less {against}): {excess}; one-sided "
+        f"p-value {pvalue(w.p_value)}, adjusted (Benjamini–Hochberg) {pvalue(w.p_adjusted)}.",
         "",
     ]
     if _small(w.rows):
         lines += [f"Who is in it: {NOT_SHOWN}.", ""]
     elif w.description is not None:
         lines += _description(w.description)
-    lines.append(_local_model_sentence(w.local_model))
+    lines.append(_local_model_sentence(w.local_model, task.counts))
     stability = (
         f"found again in {w.stability * 100:.0f}% of reruns."
         if w.stability is not None
@@ -378,20 +390,6 @@ def _weak_region(w: WeakRegion) -> list[str]:
     )
     lines += ["", "Stability: " + stability, ""]
     return lines
-
-
-#: what a kind of loss is called on a page
-KIND_WORDS = {
-    "error": "errors",
-    "false_positive": "false positives",
-    "false_negative": "false negatives",
-    "squared_error": "squared errors",
-}
-GRAPH_WORDS = {"features": "feature graph", "error_aware": "error-aware graph"}
-
-
-def _graph_words(name: str) -> str:
-    return GRAPH_WORDS.get(name, escape(name) + " graph")
 
 
 def _also_found(w: WeakRegion) -> str:
@@ -403,7 +401,19 @@ def _also_found(w: WeakRegion) -> str:
 def _found_words(label: str) -> str:
     """``"error_aware/false_negative"`` -> ``"the error-aware graph (false negatives)"``."""
     graph, _, kind = label.partition("/")
-    return f"the {_graph_words(graph)} ({KIND_WORDS.get(kind, escape(kind))})"
+    return f"the {graph_words(graph)} ({kind_words(kind)})"
+
+
+def _all_of_one_kind(w: WeakRegion) -> str:
+    """``", all false negatives"`` when every error of a region of errors is of one kind."""
+    mix = w.error_mix
+    if w.kind != "error" or mix is None or _small(w.rows) or not mix.errors:
+        return ""
+    if mix.false_negatives == mix.errors:
+        return ", all of them false negatives"
+    if mix.false_positives == mix.errors:
+        return ", all of them false positives"
+    return ""
 
 
 def _on_feature(w: WeakRegion) -> list[str]:
@@ -476,18 +486,41 @@ def _poor_rule(precision: float | None, recall: float | None) -> bool:
     return any(v is None or v < POOR_RULE for v in (precision, recall))
 
 
-def _local_model_sentence(lm: LocalModelTest) -> str:
+_VERDICTS = {
+    "local model better": "a model of its own would do better here than the recalibrated release",
+    "recalibration enough": "recalibrating the release on this region does as well as a "
+    "model of its own",
+    "no clear gain": "neither a model of its own nor recalibration clearly does better",
+}
+
+
+def _local_model_sentence(lm: LocalModelTest, counts: bool) -> str:
     if lm.verdict == "too small to try":
         return "Local model: the region is too small to try one."
+    loss = "log loss" if counts else "squared error"
+    base = (
+        f"Local model ({escape(lm.model)}, {lm.folds}-fold cross-validation on the region): "
+        f"held-out {loss} {rate(lm.local_loss)}, against the release's scores "
+        f"{rate(lm.release_loss)}"
+    )
+    if lm.recalibrated_loss is None or lm.local_vs_recalibrated is None:
+        return (
+            f"{base}; difference {signed(lm.difference)} (95% interval {signed(lm.low)} to "
+            f"{signed(lm.high)}): **{escape(lm.verdict)}**."
+        )
+    d = lm.local_vs_recalibrated
+    constant = "the training folds' rate" if counts else "the training folds' mean"
     return (
-        f"Local model ({escape(lm.model)}, {lm.folds}-fold): held-out loss "
-        f"{rate(lm.local_loss)} against the release's {rate(lm.release_loss)}; "
-        f"difference {signed(lm.difference)} (95% interval {signed(lm.low)} to "
-        f"{signed(lm.high)}): **{escape(lm.verdict)}**."
+        f"{base}, a constant ({constant}) "
+        f"{rate(lm.constant_loss)} and the release recalibrated on "
+        f"the region ({escape(lm.recalibration or 'recalibration')}, fitted on the training "
+        f"folds) {rate(lm.recalibrated_loss)}. Local model less recalibrated release: "
+        f"{signed(d.difference)} (95% interval {signed(d.low)} to {signed(d.high)}): "
+        f"**{_VERDICTS.get(lm.verdict, escape(lm.verdict))}**."
     )
 
 
-def _graph_section(a: Analysis, graph: GraphDocument, charts: Charts) -> list[str]:
+def _graph_section(a: Analysis, task: Task, graph: GraphDocument, charts: Charts) -> list[str]:
     """The shape of the data: the graph's invariants in words, and the graph view."""
     drawn = drawn_graph(graph)
     n_drawn, n_all = len(drawn.nodes), len(graph.nodes)
@@ -502,7 +535,11 @@ def _graph_section(a: Analysis, graph: GraphDocument, charts: Charts) -> list[st
     if n_small:
         notes.append(f"grey: nodes of fewer than {MIN_CELL_ROWS} rows, statistics not shown")
     charts["graph"] = views.graph_view(
-        nodes, edges, title="The shape of the validation data (Mapper graph)", notes=notes
+        nodes,
+        edges,
+        title="The shape of the validation data (Mapper graph)",
+        notes=notes,
+        labels=views.METRIC_LABELS if task.counts else views.REGRESSION_LABELS,
     ).to_dict()
     inv = a.graph.invariants
     lines = [
@@ -668,6 +705,13 @@ def _settings_sentence(shape: ShapeRecord, config: dict[str, Any], rows: int) ->
     return text
 
 
+def _interval(est: Estimate) -> str:
+    """``"0.046 to 0.076"``, or why there is none."""
+    if est.low is None or est.high is None:
+        return "not computed for regions"
+    return f"{rate(est.low)} to {rate(est.high)}"
+
+
 def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
     """The regions of the partition: the headline metric by region, chart and table."""
     key, label = task.headline
@@ -686,7 +730,7 @@ def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
     lines = [
         "## Regions",
         "",
-        f"The graph is partitioned into {a.summary.regions} regions (Louvain "
+        f"The graph is partitioned into {plural(a.summary.regions, 'region')} (Louvain "
         "communities); "
         "every row has one home region and the table adds up to the whole data set.",
         "",
@@ -699,20 +743,31 @@ def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
             reg, overall=overall.value, metric_title=label
         ).to_dict()
         lines.append(_chart_block("regions", charts["regions"], f"{label} by region"))
-    lines += [f"| region | rows | nodes | {label} | 95% interval |", "|---|---|---|---|---|"]
+    promised = task.counts and any(r.promised_error_rate is not None for r in a.regions)
+    extra = " error rate its scores promise |" if promised else ""
+    lines += [
+        f"| region | rows | nodes | {label} | 95% interval |{extra}",
+        "|---|---|---|---|---|" + ("---|" if promised else ""),
+    ]
     for r in a.regions:
         est = r.metrics[key]
-        cells = (
-            f"{NOT_SHOWN} | "
-            if _small(r.rows)
-            else f"{rate(est.value)} | {rate(est.low)} to {rate(est.high)}"
-        )
-        lines.append(f"| {r.id} | {count(r.rows)} | {r.nodes} | {cells} |")
+        cells = f"{NOT_SHOWN} | " if _small(r.rows) else f"{rate(est.value)} | {_interval(est)}"
+        more = f" {'' if _small(r.rows) else rate(r.promised_error_rate)} |" if promised else ""
+        lines.append(f"| {r.id} | {count(r.rows)} | {r.nodes} | {cells} |{more}")
     lines += [
         f"| all | {count(a.provenance.rows)} | {a.graph.invariants.n_nodes} | "
-        f"{rate(overall.value)} | {rate(overall.low)} to {rate(overall.high)} |",
+        f"{rate(overall.value)} | {rate(overall.low)} to {rate(overall.high)} |"
+        + (" |" if promised else ""),
         "",
     ]
+    if promised:
+        lines += [
+            "A region's error rate can be high without a weak region there: a weak region "
+            "is one where the release errs more than its own scores promise (times the "
+            "factor above). Where the last two columns are close, the scores already say "
+            "that these rows are hard to decide.",
+            "",
+        ]
     return lines
 
 
@@ -755,9 +810,49 @@ def _stability_section(a: Analysis, charts: Charts) -> list[str]:
     return [
         "## Stability",
         "",
+        *_stability_words(a),
         _chart_block("stability", charts["stability"], "stability of weak regions"),
         "",
     ]
+
+
+def _stability_words(a: Analysis) -> list[str]:
+    """What was varied in the reruns, in the configuration's own terms."""
+    audit = a.config.get("audit", {})
+    grid = [r for r in a.stability.runs if r.kind == "grid"]
+    subsamples = [r for r in a.stability.runs if r.kind != "grid"]
+    parts = []
+    if grid:
+        parts.append(
+            f"- {plural(len(grid), 'rerun')} of the whole search with the covers of both "
+            "search graphs changed: their interval counts moved by "
+            f"{_listed(audit.get('stability_intervals', []))} "
+            f"(audit.stability_intervals) and their overlaps by "
+            f"{_listed(audit.get('stability_overlaps', []))} (audit.stability_overlaps); "
+            "each is labelled below by the error-aware graph's resulting setting;"
+        )
+    if subsamples:
+        parts.append(
+            f"- {plural(len(subsamples), 'rerun')} on a subsample of 80% of the rows drawn "
+            "without replacement (audit.bootstrap_resamples counts them; they are "
+            "subsamples, not bootstrap resamples)."
+        )
+    return [
+        "Each weak region was looked for again in:",
+        "",
+        *parts,
+        "",
+        "A region counts as found again when a region confirmed in the rerun shares at "
+        f"least {audit.get('match_jaccard', 0.5)} of their rows (Jaccard). The intervals "
+        "of the metrics on this page come from elsewhere: Wilson intervals for rates, 200 "
+        "percentile-bootstrap resamples of all rows for the other metrics.",
+        "",
+    ]
+
+
+def _listed(values: list) -> str:
+    words = [f"{v:+g}" for v in values]
+    return _join(words) if words else "nothing"
 
 
 def _local_models_section(a: Analysis, charts: Charts) -> list[str]:
@@ -765,24 +860,82 @@ def _local_models_section(a: Analysis, charts: Charts) -> list[str]:
     tested = [w for w in a.weak_regions if w.local_model.verdict != "too small to try"]
     if not tested:
         return []
+    recal = all(w.local_model.local_vs_recalibrated is not None for w in tested)
+    diffs = [w.local_model.local_vs_recalibrated if recal else w.local_model for w in tested]
     lm = pd.DataFrame(
         {
             "region": [w.id for w in tested],
-            "value": [w.local_model.difference for w in tested],
-            "low": [w.local_model.low for w in tested],
-            "high": [w.local_model.high for w in tested],
+            "value": [d.difference for d in diffs],
+            "low": [d.low for d in diffs],
+            "high": [d.high for d in diffs],
         }
     )
-    charts["local_models"] = views.local_model_view(lm).to_dict()
+    against = "recalibrated release" if recal else "release"
+    charts["local_models"] = views.local_model_view(lm, against=against).to_dict()
     return [
         "## Local models",
+        "",
+        f"Left of the line, a model fitted on the weak region alone has a lower held-out "
+        f"loss than the {against}"
+        + (
+            " (the release's scores refitted to the region by "
+            f"{escape(tested[0].local_model.recalibration or 'recalibration')}): only then "
+            "does the region need a model of its own rather than a recalibration."
+            if recal
+            else "."
+        ),
         "",
         _chart_block("local_models", charts["local_models"], "local model results"),
         "",
     ]
 
 
-def _comparison_section(a: Analysis, charts: Charts) -> list[str]:
+def _score_changes(comp: Comparison) -> list[str]:
+    """The paired tests on the scores (classification): decisions at the threshold can
+    stay put while the scores move."""
+    ov = comp.overall
+    if ov.roc_auc is None and ov.brier is None:
+        return []
+    lines = [
+        "Decisions at the threshold are only part of it: the scores themselves, compared "
+        "on the same rows (ROC AUC: DeLong's paired test; Brier score: paired t-test of "
+        "the per-row differences):",
+        "",
+        "| rows | ROC AUC before | after | change | adjusted p-value | Brier before | after "
+        "| change | adjusted p-value |",
+        "|---|---|---|---|---|---|---|---|---|",
+    ]
+    for name, c in [("all", ov), *((f"region {c.region}", c) for c in comp.regions)]:
+        lines.append(
+            f"| {name} | {_score_cells(c.roc_auc, c.rows)} | {_score_cells(c.brier, c.rows)} |"
+        )
+    return [*lines, "", *_no_change_note(comp)]
+
+
+def _score_cells(s: ScoreChange | None, rows: int) -> str:
+    if s is None:
+        return "n/a | n/a | n/a | n/a"
+    if _small(rows):
+        return " | ".join([NOT_SHOWN] + ["" for _ in range(3)])
+    if s.change is None:
+        return f"{escape(s.note) or 'not defined'} | | |"
+    p = pvalue(s.p_adjusted if s.p_adjusted is not None else s.p_value)
+    return f"{rate(s.before)} | {rate(s.after)} | {change(s.before, s.after)} | {p}"
+
+
+def _no_change_note(comp: Comparison) -> list[str]:
+    same = [c.region for c in comp.regions if c.worse_only_after == 0 and c.worse_only_before == 0]
+    if not same:
+        return []
+    return [
+        f"In {plural(len(same), 'region')} ({', '.join(map(str, same))}) no decision "
+        "changed between the releases: their change is exactly 0, with no interval to "
+        "show; the score tests above still compare them.",
+        "",
+    ]
+
+
+def _comparison_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
     """The release against its baseline on the same rows, overall and by region."""
     comp = a.comparison
     if not comp:
@@ -797,16 +950,18 @@ def _comparison_section(a: Analysis, charts: Charts) -> list[str]:
         }
     )
     ov = comp.overall
+    test = "exact McNemar p-value" if task.counts else "paired t-test p-value"
     lines = [
         f"## Against release {escape(comp.baseline)}",
         "",
-        f"On the same rows, the error rate moved from {rate(ov.before)} to "
-        f"{rate(ov.after)} ({signed(ov.change)}; exact McNemar p-value "
-        f"{pvalue(ov.p_value)}). Regions that got worse: "
+        f"On the same rows, the {task.loss_words} moved from {rate(ov.before)} to "
+        f"{rate(ov.after)} ({change(ov.before, ov.after)}; {test} {pvalue(ov.p_value)}). "
+        f"Regions whose {task.loss_words} got worse: "
         f"{', '.join(str(x) for x in comp.worse) or 'none'}; better: "
-        f"{', '.join(str(x) for x in comp.better) or 'none'} (Benjamini–Hochberg "
-        "across regions).",
+        f"{', '.join(str(x) for x in comp.better) or 'none'} (Benjamini–Hochberg across "
+        "regions).",
         "",
+        *_score_changes(comp),
     ]
     if len(compared) < len(comp.regions):
         lines += [f"Regions of fewer than {MIN_CELL_ROWS} rows are left out of the chart.", ""]
@@ -837,11 +992,12 @@ def _cautions(a: Analysis) -> list[str]:
     min_rows = a.config["audit"]["min_rows"]
     for w in a.weak_regions:
         rows = w.confirmation.rows
-        width = w.error_interval_points
+        width = w.confirmation_interval_points
         if width is not None and (rows < 4 * min_rows or width > 15):
             out.append(
                 f"Weak region {w.id} has {count(rows)} rows in the confirmation "
-                f"half; its error-rate interval spans {width:.0f} points."
+                f"half; the 95% interval of its error rate on those rows spans "
+                f"{width:.0f} points."
             )
         if w.stability is not None and w.stability < 0.5:
             out.append(
@@ -898,7 +1054,7 @@ def _reproduce_section(a: Analysis) -> list[str]:
         f"- graph shown: {escape(settings.get('filter', ''))}, {escape(settings.get('cover', ''))}",
         "- search graphs: "
         + "; ".join(
-            f"the {_graph_words(s.name)} ({plural(s.nodes, 'node')}, features used: "
+            f"the {graph_words(s.name)} ({plural(s.nodes, 'node')}, features used: "
             f"{', '.join(escape(f) for f in s.features_used)})"
             for s in a.search
         ),

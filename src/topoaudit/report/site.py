@@ -98,6 +98,33 @@ def signoff_words(records: list[SignOff]) -> str:
     return f"{escape(s.decision_words)} by {escape(s.reviewer)}, {escape(s.date)}"
 
 
+def signoff_section(records: list[SignOff]) -> str:
+    """The sign-off section added to a release page when the site is built (the bundle's
+    own page.md is checksummed and written before any sign-off exists): every decision,
+    newest first, with reviewer, date and note, escaped."""
+    lines = ["", "## Sign-off", ""]
+    if not records:
+        lines += [
+            "Not signed off yet. A reviewer records a decision with topoaudit signoff; the "
+            "record sits beside the published bundle and never changes it.",
+            "",
+        ]
+        return "\n".join(lines)
+    lines += [
+        "Decisions recorded on this release, newest first (each record is checksummed and "
+        "chained to the one before; topoaudit archive verify checks them):",
+        "",
+        "| date | reviewer | decision | note |",
+        "|---|---|---|---|",
+    ]
+    for s in reversed(records):
+        lines.append(
+            f"| {escape(s.date)} | {escape(s.reviewer)} | {escape(s.decision_words)} | "
+            f"{escape(s.note)} |"
+        )
+    return "\n".join([*lines, ""])
+
+
 def _history_page(model: str, rels: list[PublishedRelease]) -> str:
     headline_key, headline = task_named(rels[0].analysis.task).headline
     lines = [
@@ -192,6 +219,7 @@ def _build_into(
         for i, r in enumerate(rels):
             page_dir = docs / model / r.release
             text = (r.folder / "page.md").read_text(encoding="utf-8")
+            text += signoff_section(signoffs(r.folder))
             if row_ids:
                 text += _row_list(r.folder, page_dir)
             _write(page_dir / "index.md", text)

@@ -26,6 +26,7 @@ from typing import Any
 from topoaudit.wording import count, is_missing, plural
 
 __all__ = [
+    "change",
     "code_fence",
     "count",
     "escape",
@@ -103,6 +104,15 @@ def code_fence(text: str) -> str:
 def rate(value: Any, digits: int = 3) -> str:
     """A proportion or loss with ``digits`` decimals; "n/a" when undefined."""
     return "n/a" if is_missing(value) else f"{float(value):.{digits}f}"
+
+
+def change(before: Any, after: Any, digits: int = 3) -> str:
+    """The change from ``before`` to ``after`` as the page shows them: the difference of
+    the two rounded values, so that the numbers on a page add up (the one rounding rule
+    of every page)."""
+    if is_missing(before) or is_missing(after):
+        return "n/a"
+    return signed(round(float(after), digits) - round(float(before), digits), digits)
 
 
 def signed(value: Any, digits: int = 3) -> str:

@@ -32,6 +32,18 @@ METRIC_LABELS = {
     "loss": "observed error rate",
     "mean_score": "mean score",
 }
+#: the graph's words for a regression: the loss is a squared error, the reference the
+#: mean squared error of all rows
+REGRESSION_LABELS = {
+    "excess": "squared error above the mean of all rows (per row)",
+    "loss": "mean squared error",
+    "mean_score": "mean prediction",
+}
+#: the tooltip's name of each node's expected loss, by the labels in use
+EXPECTED_LABELS = {
+    "observed error rate": "error rate the scores promise",
+    "mean squared error": "mean squared error of all rows",
+}
 
 
 def _largest_magnitude(values: pd.Series) -> float:
@@ -62,7 +74,12 @@ def equal_aspect_domains(
 
 
 def graph_view(
-    nodes: pd.DataFrame, edges: pd.DataFrame, *, title: str, notes: Sequence[str] = ()
+    nodes: pd.DataFrame,
+    edges: pd.DataFrame,
+    *,
+    title: str,
+    notes: Sequence[str] = (),
+    labels: dict[str, str] | None = None,
 ) -> alt.LayerChart:
     """The graph as a node-link drawing.
 
@@ -71,15 +88,17 @@ def graph_view(
     Node size shows rows; colour shows the metric picked in the selector; nodes of weak
     regions are outlined. A node whose statistics are missing (None: too few rows to
     show them) is drawn grey and its tooltip says "not shown". ``notes`` are added to
-    the subtitle.
+    the subtitle. ``labels`` names the three metrics (default :data:`METRIC_LABELS`; a
+    regression uses :data:`REGRESSION_LABELS`).
     """
     use_theme()
+    labels = labels or METRIC_LABELS
     metric = alt.param(
         name="colour_by",
         value="excess",
         bind=alt.binding_select(
-            options=list(METRIC_LABELS),
-            labels=list(METRIC_LABELS.values()),
+            options=list(labels),
+            labels=list(labels.values()),
             name="Colour nodes by ",
         ),
     )
@@ -95,7 +114,7 @@ def graph_view(
     size = alt.Size("rows:Q", title="rows in node", scale=alt.Scale(range=[90, 1400]))
     # The colour scale is symmetric about 0 for the selected metric, so that equal
     # distances from "as promised" look equally strong on both sides.
-    extent = json.dumps({m: _largest_magnitude(nodes[m]) for m in METRIC_LABELS}, sort_keys=True)
+    extent = json.dumps({m: _largest_magnitude(nodes[m]) for m in labels}, sort_keys=True)
     shown = {
         f"{field}_text": f"datum.{field} == null ? 'not shown' : format(datum.{field}, '.3f')"
         for field in ("loss", "expected_loss", "mean_score")
@@ -104,9 +123,9 @@ def graph_view(
         alt.Tooltip("node:N", title="node"),
         alt.Tooltip("rows:Q", title="rows"),
         alt.Tooltip("region:N", title="region"),
-        alt.Tooltip("loss_text:N", title="observed error rate"),
-        alt.Tooltip("expected_loss_text:N", title="error rate the scores promise"),
-        alt.Tooltip("mean_score_text:N", title="mean score"),
+        alt.Tooltip("loss_text:N", title=labels["loss"]),
+        alt.Tooltip("expected_loss_text:N", title=EXPECTED_LABELS.get(labels["loss"], "expected")),
+        alt.Tooltip("mean_score_text:N", title=labels["mean_score"]),
         alt.Tooltip("weak:N", title="weak regions"),
     ]
     points = _node_points(nodes, base_x, base_y, size, shown, tooltip, extent).add_params(metric)
@@ -252,15 +271,16 @@ def comparison_view(changes: pd.DataFrame, *, baseline: str, candidate: str) -> 
     )
 
 
-def local_model_view(tests: pd.DataFrame) -> alt.LayerChart:
-    """Held-out loss of a local model minus the release's, per weak region
-    (``region``, ``value``, ``low``, ``high``)."""
+def local_model_view(tests: pd.DataFrame, *, against: str = "release") -> alt.LayerChart:
+    """Held-out loss of a local model minus that of ``against`` (the release, or the
+    release recalibrated on the region), per weak region (``region``, ``value``,
+    ``low``, ``high``)."""
     return _interval_chart(
         tests,
         category="region",
         category_title="weak region",
         value="value",
-        value_title="local model loss minus release loss (95% interval over folds)",
+        value_title=f"local model loss minus {against} loss (95% interval over folds)",
         title="Would a local model do better? Left of the line: yes",
         reference=0.0,
         reference_label="no difference",
