@@ -445,3 +445,15 @@ def test_no_features_left_is_refused() -> None:
         DataError, match=message("no feature columns are left; name them in data.features.")
     ):
         prepare_dataset(df, config(exclude=["x1"]))
+
+
+def test_a_first_line_of_spaces_is_a_header_without_names_not_a_line_to_skip(
+    tmp_path: Path,
+) -> None:
+    # found by the fuzz test of random CSV files: the blank header line was skipped and the
+    # first row of data became the header (RFC 4180: the first line is the header when
+    # there is one)
+    path = tmp_path / "rows.csv"
+    path.write_text(" \n0.0\n0.0\n", encoding="utf-8")
+    with pytest.raises(DataError, match=r"the header gives no name to column 1"):
+        read_table(path)

@@ -86,7 +86,11 @@ def _read_csv(path: Path) -> pd.DataFrame:
     # to "Unnamed: 3"), then at most MAX_ROWS + 1 rows, so a huge file is refused after
     # reading no more than the limit. low_memory=False infers one type per column from all
     # its rows, not one per chunk.
-    header = pd.read_csv(path, header=None, nrows=1, dtype=str, keep_default_na=False)
+    # (blank lines kept: a first line of spaces is a header without names, not a line to
+    # skip, or the first row of data would become the header)
+    header = pd.read_csv(
+        path, header=None, nrows=1, dtype=str, keep_default_na=False, skip_blank_lines=False
+    )
     written = [str(c) for c in header.iloc[0].tolist()]
     frame = pd.read_csv(path, keep_default_na=True, nrows=MAX_ROWS + 1, low_memory=False)
     if frame.shape[0] > MAX_ROWS:
