@@ -252,8 +252,15 @@ def _build_into(
     for name in ("charts.js", "topoaudit.css"):
         shutil.copyfile(template / "assets" / name, assets / name)
     yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
-    # mkdocs' theme templates put site_name into the HTML as it is: escape it here
-    yml = yml.replace('"{site_name}"', json.dumps(html.escape(site_name)))
+    # mkdocs' theme templates put these into the HTML as they are: escape them here
+    for key, value in (
+        ("site_name", site_name),
+        ("archive", Path(archive).resolve().name),
+        ("version", _version()),
+        ("built", build_date()),
+    ):
+        yml = yml.replace(f'"{{{key}}}"', json.dumps(html.escape(value)))
+    shutil.copytree(template / "theme", work / "theme")
     yml += "nav:\n" + _nav_yaml(nav, 1)
     (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
     log.info("running mkdocs build")
@@ -267,6 +274,15 @@ def _build_into(
     (stage.path / SITE_MARKER).write_text(
         canonical_json({"built": build_date(), "by": "topoaudit site build"}), encoding="utf-8"
     )
+
+
+def _version() -> str:
+    from importlib import metadata
+
+    try:
+        return metadata.version("topoaudit")
+    except metadata.PackageNotFoundError:  # pragma: no cover - run from a bare checkout
+        return "(version unknown)"
 
 
 ROW_LIST = "weak-region-rows.csv"
