@@ -613,7 +613,7 @@ def run_audit(
         overall=overall,
         graph=rec.GraphSummary(
             settings=graph.settings,
-            invariants=invariants(graph),
+            invariants=rec.Invariants(**dataclasses.asdict(invariants(graph))),
             regions=partition.n_regions,
             grid=grid,
             shape=shape,

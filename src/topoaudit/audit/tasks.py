@@ -8,14 +8,18 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from topoaudit.audit.metrics import binary_metrics, calibration_bins, regression_metrics
-from topoaudit.audit.weak import Losses, binary_losses, regression_losses
 from topoaudit.bundle.records import CalibrationBin, Estimate
 from topoaudit.errors import ParameterError
+
+if TYPE_CHECKING:
+    from topoaudit.audit.weak import Losses
+
+# The statistics are imported when first used: pages and the site read a task's words
+# without loading the statistics stack.
 
 __all__ = ["BINARY", "REGRESSION", "TASKS", "Task", "task_named"]
 
@@ -80,6 +84,8 @@ class Task:
         """Reliability-diagram bins of a region (classification only)."""
         if not self.counts:
             return None
+        from topoaudit.audit.metrics import calibration_bins
+
         return tuple(CalibrationBin(**b) for b in calibration_bins(y, score))
 
     def positive_rate(self, y: np.ndarray) -> float | None:
@@ -88,11 +94,27 @@ class Task:
 
 
 def _binary_metrics(y: Any, p: Any, t: float, boot: int, seed: int) -> dict[str, Estimate]:
+    from topoaudit.audit.metrics import binary_metrics
+
     return binary_metrics(y, p, t, bootstrap=boot, random_state=seed)
 
 
 def _regression_metrics(y: Any, f: Any, _t: float, boot: int, seed: int) -> dict[str, Estimate]:
+    from topoaudit.audit.metrics import regression_metrics
+
     return regression_metrics(y, f, bootstrap=boot, random_state=seed)
+
+
+def _binary_losses(y: Any, p: Any, t: float) -> list[Losses]:
+    from topoaudit.audit.weak import binary_losses
+
+    return binary_losses(y, p, t)
+
+
+def _regression_losses(y: Any, f: Any, _t: float) -> list[Losses]:
+    from topoaudit.audit.weak import regression_losses
+
+    return regression_losses(y, f)
 
 
 BINARY = Task(
@@ -111,7 +133,7 @@ BINARY = Task(
     has_threshold=True,
     loss_words="error rate",
     _metrics=_binary_metrics,
-    _losses=binary_losses,
+    _losses=_binary_losses,
 )
 
 REGRESSION = Task(
@@ -128,7 +150,7 @@ REGRESSION = Task(
     has_threshold=False,
     loss_words="mean squared error",
     _metrics=_regression_metrics,
-    _losses=lambda y, f, _t: regression_losses(y, f),
+    _losses=_regression_losses,
 )
 
 TASKS = {t.name: t for t in (BINARY, REGRESSION)}

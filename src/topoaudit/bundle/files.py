@@ -26,13 +26,15 @@ import os
 import stat
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import pandas as pd
 
 from topoaudit.bundle.records import SCHEMA, Analysis, GraphDocument, to_dict
 from topoaudit.errors import ArchiveError, BundleError
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = [
     "ANALYSIS",
@@ -211,6 +213,8 @@ def read_graph(folder: str | Path) -> GraphDocument:
 
 def read_members(folder: str | Path, columns: Sequence[str] | None = None) -> pd.DataFrame:
     """The row-level table of a bundle (the bundle only: no page or chart reads it)."""
+    import pandas as pd
+
     path = Path(folder) / MEMBERS
     try:
         return pd.read_parquet(path, columns=list(columns) if columns is not None else None)

@@ -29,7 +29,6 @@ from dataclasses import dataclass, field
 from typing import Any, TypeVar
 
 from topoaudit.errors import BundleError
-from topoaudit.mapper.topology import Invariants
 
 __all__ = [
     "DECISIONS",
@@ -521,7 +520,21 @@ class WeakRegion(Candidate):
 
 
 @record
-class GridPoint(Invariants, _Record):
+class Invariants(_Record):
+    """The shape of a graph in numbers (as :class:`topoaudit.mapper.topology.Invariants`
+    computes them; declared here so that reading a bundle needs no graph engine)."""
+
+    n_nodes: int
+    n_edges: int
+    n_components: int
+    cycle_rank: int
+    n_leaves: int
+    n_branch_points: int
+    n_isolated: int
+
+
+@record
+class GridPoint(Invariants):
     """The shown graph's invariants at one other cover setting."""
 
     n_intervals: int

@@ -251,18 +251,7 @@ def _build_into(
     (assets / "vega-bundle.js").write_text(vlc.javascript_bundle(), encoding="utf-8")
     for name in ("charts.js", "topoaudit.css"):
         shutil.copyfile(template / "assets" / name, assets / name)
-    yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
-    # mkdocs' theme templates put these into the HTML as they are: escape them here
-    for key, value in (
-        ("site_name", site_name),
-        ("archive", Path(archive).resolve().name),
-        ("version", _version()),
-        ("built", build_date()),
-    ):
-        yml = yml.replace(f'"{{{key}}}"', json.dumps(html.escape(value)))
-    shutil.copytree(template / "theme", work / "theme")
-    yml += "nav:\n" + _nav_yaml(nav, 1)
-    (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
+    _write_mkdocs_config(template, work, Path(archive), site_name, nav)
     log.info("running mkdocs build")
     say("step 2 of 3: running mkdocs build")
     try:
@@ -274,6 +263,25 @@ def _build_into(
     (stage.path / SITE_MARKER).write_text(
         canonical_json({"built": build_date(), "by": "topoaudit site build"}), encoding="utf-8"
     )
+
+
+def _write_mkdocs_config(
+    template: Path, work: Path, archive: Path, site_name: str, nav: list[Any]
+) -> None:
+    """The site's mkdocs.yml and theme in the work folder, with the site's name, the
+    archive's name, the version and the build date filled in."""
+    yml = (template / "mkdocs.yml").read_text(encoding="utf-8")
+    # mkdocs' theme templates put these into the HTML as they are: escape them here
+    for key, value in (
+        ("site_name", site_name),
+        ("archive", archive.resolve().name),
+        ("version", _version()),
+        ("built", build_date()),
+    ):
+        yml = yml.replace(f'"{{{key}}}"', json.dumps(html.escape(value)))
+    shutil.copytree(template / "theme", work / "theme")
+    yml += "nav:\n" + _nav_yaml(nav, 1)
+    (work / "mkdocs.yml").write_text(yml, encoding="utf-8")
 
 
 def _version() -> str:
