@@ -105,7 +105,7 @@ def _init(args: argparse.Namespace) -> int:
 
 
 def _publish(args: argparse.Namespace) -> int:
-    from topoaudit.report.site import publish
+    from topoaudit.report.archive import publish
 
     dest = publish(args.bundle, args.archive, replace=args.replace)
     print(f"published {args.bundle} as {dest}")

@@ -153,7 +153,7 @@ def test_site_build_killed_anywhere_leaves_the_old_site_or_the_new_one(fixture_a
     probe = tmp_path / "probe"
     shutil.copytree(old_site, probe / "site")
     points = _kill_points(
-        probe, "site", "build", "--archive", str(archive), "--out", str(probe / "site"), limit=8
+        probe, "site", "build", "--archive", str(archive), "--out", str(probe / "site"), limit=5
     )
     for k in points:
         root = tmp_path / f"kill-{k}"

@@ -505,8 +505,6 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
     the model's history (with its checksums). A bundle whose files no longer match its
     ``checksums.json``, or that holds a symbolic link, is refused.
     """
-    from topoaudit.report.page import render_bundle
-
     bundle, archive = Path(bundle), Path(archive)
     if not bundle.is_dir():
         raise ArchiveError(f"{bundle}: no such bundle folder.")
@@ -543,6 +541,8 @@ def publish(bundle: str | Path, archive: str | Path, *, replace: bool = False) -
             if (staged / CHECKSUMS).exists():
                 refuse_changed(staged)
             if not (staged / "page.md").exists():
+                from topoaudit.report.page import render_bundle  # only then: it loads the charts
+
                 render_bundle(staged)
             sequence = 1 + max(_sequences(model_dir), default=0)
             write_file(
