@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-__all__ = ["count", "is_missing", "plural"]
+__all__ = ["count", "is_missing", "join_words", "plural"]
 
 
 def is_missing(value: Any) -> bool:
@@ -32,3 +32,14 @@ def plural(n: Any, word: str, words: str | None = None) -> str:
     """
     many = words if words is not None else word + "s"
     return f"{count(n)} {word if n == 1 else many}"
+
+
+def join_words(parts: list[str]) -> str:
+    """``"a"``, ``"a and b"``, ``"a, b and c"``.
+
+    Examples
+    --------
+    >>> join_words(["a"]), join_words(["a", "b", "c"])
+    ('a', 'a, b and c')
+    """
+    return parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]

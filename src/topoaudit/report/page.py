@@ -83,6 +83,7 @@ from topoaudit.report.text import (
     script_json,
     signed,
 )
+from topoaudit.wording import join_words
 
 __all__ = ["MIN_CELL_ROWS", "Page", "build_page", "drawn_graph", "node_layout", "render_bundle"]
 
@@ -395,7 +396,7 @@ def _weak_region(w: WeakRegion, task: Task) -> list[str]:
 def _also_found(w: WeakRegion) -> str:
     if not w.also_found:
         return ""
-    return ", and again in " + _join([_found_words(x) for x in w.also_found])
+    return ", and again in " + join_words([_found_words(x) for x in w.also_found])
 
 
 def _found_words(label: str) -> str:
@@ -640,7 +641,7 @@ def _feature_table(features: tuple[ShapeFeatureRecord, ...], *, resampled: bool)
     if narrow and resampled:
         lines += [
             "",
-            f"The confidence of {_join(narrow)} is low: it measures a feature's extent along "
+            f"The confidence of {join_words(narrow)} is low: it measures a feature's extent along "
             "the filter, and a group narrow along the filter scores low even when it lies "
             "far from the other rows in other columns (see what sets it apart).",
         ]
@@ -652,11 +653,6 @@ def _feature_where(f: ShapeFeatureRecord) -> str:
         cols = ", ".join(escape(c.column) for c in f.columns)
         return f"goes round in {cols}" if cols else ""
     return ", ".join(f"{escape(c.column)} {c.direction} ({signed(c.smd, 1)})" for c in f.columns)
-
-
-def _join(names: list[str]) -> str:
-    """``"a"``, ``"a and b"``, ``"a, b and c"``."""
-    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
 def _farthest(quantile: float) -> str:
@@ -852,7 +848,7 @@ def _stability_words(a: Analysis) -> list[str]:
 
 def _listed(values: list) -> str:
     words = [f"{v:+g}" for v in values]
-    return _join(words) if words else "nothing"
+    return join_words(words) if words else "nothing"
 
 
 def _local_models_section(a: Analysis, charts: Charts) -> list[str]:

@@ -21,7 +21,7 @@ from topoaudit.bundle.records import (
     WeakRegion,
 )
 from topoaudit.report.text import count, escape, plural, pvalue, rate
-from topoaudit.wording import is_missing
+from topoaudit.wording import is_missing, join_words
 
 __all__ = [
     "BROAD_SHARE",
@@ -150,7 +150,7 @@ def regions_sentence(w: WeakRegion) -> list[str]:
     out = []
     if w.regions:
         parts = [_share_words(s) for s in w.regions]
-        out.append(f"It holds {_join(parts)}.")
+        out.append(f"It holds {join_words(parts)}.")
     if w.share_of_rows is not None and w.share_of_rows >= BROAD_SHARE:
         out.append(
             f"It holds {w.share_of_rows * 100:.0f}% of all rows: a broad part of the data, "
@@ -162,10 +162,6 @@ def regions_sentence(w: WeakRegion) -> list[str]:
 def _share_words(s: RegionShare) -> str:
     share = f" ({s.rows / s.region_rows * 100:.0f}%)" if s.region_rows else ""
     return f"{count(s.rows)} of the {count(s.region_rows)} rows of region {s.region}{share}"
-
-
-def _join(parts: list[str]) -> str:
-    return parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
 
 
 # -- decisions at the threshold ----------------------------------------------------------
