@@ -83,6 +83,23 @@ def binomial_upper_test(observed: int, n: int, share: float) -> float:
     return float(_st.binom.sf(observed - 1, n, share))
 
 
+def binomial_lower_test(observed: int, n: int, share: float) -> float:
+    """One-sided exact binomial p-value ``P(X <= observed)`` for ``X ~ Binomial(n, share)``.
+
+    Examples
+    --------
+    >>> round(binomial_lower_test(1, 10, 0.5), 6)
+    0.010742
+    """
+    if not 0 <= share <= 1 or not 0 <= observed <= n:
+        msg = (
+            "binomial_lower_test needs 0 <= observed <= n and a share in [0, 1]; "
+            f"got observed={observed}, n={n}, share={share!r}."
+        )
+        raise ParameterError(msg)
+    return float(_st.binom.cdf(observed, n, share))
+
+
 def permutation_upper_test(
     region_values: np.ndarray,
     other_values: np.ndarray,
