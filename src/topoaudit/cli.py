@@ -62,13 +62,19 @@ def _summary(a) -> str:
     )
 
 
-def audit_command(config: str | Path, out: str | Path, release: str | None = None) -> str:
+def audit_command(
+    config: str | Path,
+    out: str | Path,
+    release: str | None = None,
+    previous: str | Path | None = None,
+) -> str:
     """The ``topoaudit audit`` command line that writes this bundle, quoted for a POSIX
     shell (recorded in the bundle and printed on its page, it runs as printed)."""
     import shlex
 
     words = ["topoaudit", "audit", str(config), "--out", str(out)]
-    return shlex.join(words + (["--release", release] if release else []))
+    words += ["--release", release] if release else []
+    return shlex.join(words + (["--previous", str(previous)] if previous else []))
 
 
 def _audit(args: argparse.Namespace) -> int:
@@ -82,9 +88,11 @@ def _audit(args: argparse.Namespace) -> int:
         msg = f"{out}: the output folder exists and is not empty; choose a new folder."
         raise TopoauditError(msg)
     config = load_config(args.config)
-    command = audit_command(args.config, args.out, args.release)
+    command = audit_command(args.config, args.out, args.release, args.previous)
     with _progress(args) as say:
-        audit = run_audit(config, release=args.release, progress=say, command=command)
+        audit = run_audit(
+            config, release=args.release, progress=say, command=command, previous=args.previous
+        )
         say("writing the bundle, its page and its charts")
         _write_bundle(audit, out)
     print(f"{_summary(audit.analysis)}; bundle written to {out}")
@@ -166,10 +174,25 @@ def _archive_verify(args: argparse.Namespace) -> int:
 
 def _diff(args: argparse.Namespace) -> int:
     from topoaudit.audit.changes import release_changes
+    from topoaudit.audit.lineage import follow, load_release
     from topoaudit.report.diff import diff_markdown
+    from topoaudit.report.gate import review_sections
 
-    sys.stdout.write(diff_markdown(release_changes(args.before, args.after)))
+    before, after = load_release(args.before), load_release(args.after)
+    lineage = follow([before, after])
+    regions = review_sections(lineage, lineage.steps[0], before, after)
+    sys.stdout.write(diff_markdown(release_changes(args.before, args.after), regions=regions))
     return 0
+
+
+def _gate(args: argparse.Namespace) -> int:
+    from topoaudit.report.gate import run_gate
+
+    code, text = run_gate(
+        args.bundle, before=args.before, archive=args.archive, config=args.config, pages=args.pages
+    )
+    sys.stdout.write(text)
+    return code
 
 
 def _demo(args: argparse.Namespace) -> int:
@@ -264,6 +287,11 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("config", help="the audit's TOML config file")
     p.add_argument("--out", required=True, help="folder for the bundle (must be new or empty)")
     p.add_argument("--release", help="release to audit (default: the last in the config)")
+    p.add_argument(
+        "--previous",
+        help="the bundle of the release before, when this release has a data file of its "
+        "own: its rows are placed on that release's graph (drift, and regions followed)",
+    )
     _progress_options(p)
     p.set_defaults(run=_audit)
 
@@ -335,6 +363,27 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("before", help="the earlier bundle")
     p.add_argument("after", help="the later bundle")
     p.set_defaults(run=_diff)
+
+    p = sub.add_parser(
+        "gate",
+        help="pass or fail a release under the config's [gate] policy; Markdown for a pull request",
+        description="Follow the weak regions from the releases before into this bundle, "
+        "apply the [gate] policy and print Markdown for a pull-request comment, the verdict "
+        "first. Exit 0: the release passes; 1: it fails a rule; 2: the gate cannot decide "
+        "(a bundle missing or unreadable, bundles of two models, a policy key or value that "
+        "does not exist, regions that cannot be followed onto the new rows).",
+    )
+    p.add_argument("bundle", help="the new release's bundle")
+    where = p.add_mutually_exclusive_group(required=True)
+    where.add_argument("--before", help="the earlier release's bundle")
+    where.add_argument(
+        "--archive", help="the archive: follow every release of the model published before"
+    )
+    p.add_argument(
+        "--config", help="take the [gate] policy from this config (default: the bundle's own)"
+    )
+    p.add_argument("--pages", help="the site's address, for links to the pages")
+    p.set_defaults(run=_gate)
 
     p = sub.add_parser("demo", help="the invented water-meter demo: audit, publish, build")
     p.add_argument("--out", default="build/demo", help="folder for everything (%(default)s)")

@@ -20,9 +20,17 @@ __all__ = ["diff_markdown"]
 NAMES = {key: label for task in TASKS.values() for key, label in task.page_metrics}
 
 
-def diff_markdown(changes: ReleaseChanges | dict[str, Any], *, heading: str = "##") -> str:
+def diff_markdown(
+    changes: ReleaseChanges | dict[str, Any],
+    *,
+    heading: str = "##",
+    regions: list[str] | None = None,
+) -> str:
     """Deterministic Markdown for the output of
-    :func:`topoaudit.audit.changes.release_changes` (a record or its plain form)."""
+    :func:`topoaudit.audit.changes.release_changes` (a record or its plain form).
+    ``regions``: the weak regions followed across the two releases
+    (:func:`topoaudit.report.gate.review_sections`), shown instead of the plain lists of
+    regions gained and lost by their own ids."""
     d = changes if isinstance(changes, ReleaseChanges) else ReleaseChanges.from_dict(changes)
     lines = [
         f"{heading} {escape(d.model)}: release {escape(d.after)} against {escape(d.before)}",
@@ -41,6 +49,8 @@ def diff_markdown(changes: ReleaseChanges | dict[str, Any], *, heading: str = "#
             f"{rate(m.after)} | {change(m.before, m.after)} |"
         )
     lines.append("")
+    if regions is not None:
+        return "\n".join([*lines, *regions]).rstrip("\n") + "\n"
 
     def listing(title: str, items: tuple[RegionBrief, ...]) -> list[str]:
         if not items:
