@@ -28,8 +28,12 @@ LIGHT_GRAPH = 'filter = "pca"\nresamples = 8\n'
 
 
 def light(config_text: str) -> str:
-    """The demo config with the light audit and shape settings."""
-    return config_text.replace('filter = "pca"', LIGHT_GRAPH.strip(), 1) + LIGHT_AUDIT
+    """The demo config with the light audit and shape settings (added to its own [audit]
+    table where it has one: TOML allows a table once)."""
+    text = config_text.replace('filter = "pca"', LIGHT_GRAPH.strip(), 1)
+    if "\n[audit]\n" in text:
+        return text.replace("\n[audit]\n", LIGHT_AUDIT, 1)
+    return text + LIGHT_AUDIT
 
 
 def pytest_configure(config: pytest.Config) -> None:

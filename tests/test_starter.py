@@ -71,10 +71,12 @@ def test_the_demo_config_is_guessed_and_audits_as_written(tmp_path, capsys):
     c = load_config(config)
     assert (c.data.id, c.data.target, c.data.task) == ("meter_id", "failed_90d", "binary")
     assert [r.score for r in c.releases] == ["score_2026_1", "score_2026_2"]
-    assert dict(c.data.categorical) == {"mechanism": "onehot"}
+    # the demo's text columns (its segments among them) are guessed as categorical features
+    text_columns = ("mechanism", "district", "material")
+    assert dict(c.data.categorical) == dict.fromkeys(text_columns, "onehot")
     assert c.data.exclude == ()
     guessed = guess_starter(pd.read_csv(data), source=str(data))
-    assert guessed.features == (*FEATURES, "mechanism")
+    assert guessed.features == (*FEATURES, *text_columns)
     assert _audit(config, tmp_path / "bundle") == 0
 
 

@@ -13,6 +13,11 @@ suggests the closest known one. A minimal file::
     [[release]]
     name = "2026.1"
     score = "score_2026_1"
+
+and, to report on declared groups of rows as well (see :class:`AuditSettings`)::
+
+    [audit]
+    segments = ["district", "material"]
 """
 
 from __future__ import annotations
@@ -168,7 +173,18 @@ class GraphSettings:
 
 @dataclass(frozen=True)
 class AuditSettings:
-    """How weak regions are searched for, confirmed, described and re-checked."""
+    """How weak regions are searched for, confirmed, described and re-checked, and which
+    groups of rows the page reports on whatever the search finds.
+
+    ``segments`` lists columns of the data file whose values group the rows the reviewer
+    asks about (a district, a material): any column of the file, a feature or not
+    (columns left out by ``data.exclude`` too). For each value of each column the page
+    shows its rows, the release's metrics there and a test against the other rows (a
+    Benjamini-Hochberg level of ``fdr`` across every value of every column). A missing
+    value is a value of its own; a column of more than
+    :data:`~topoaudit.limits.MAX_SEGMENT_LEVELS` values is refused (bin it in the data
+    file). Empty by default: no segments.
+    """
 
     fdr: float = 0.05
     min_rows: int = 30
@@ -180,6 +196,7 @@ class AuditSettings:
     stability_overlaps: tuple[float, ...] = (-0.1, 0.0, 0.1)
     bootstrap_resamples: int = 3
     match_jaccard: float = 0.5
+    segments: tuple[str, ...] = ()
 
     _checks = {
         "fdr": [Interval(float, 0.0, 1.0, closed="neither")],
@@ -192,6 +209,7 @@ class AuditSettings:
         "stability_overlaps": [_OVERLAP_OFFSETS],
         "bootstrap_resamples": [Interval(int, 0, 100)],
         "match_jaccard": [Interval(float, 0.0, 1.0, closed="right")],
+        "segments": [_STRS],
     }
     _required = ()
 
@@ -342,6 +360,10 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
         for k, cls in _SECTIONS.items()
         if k in doc and k != "data"
     }
+    declared = extra["audit"].segments if "audit" in extra else ()
+    dup = sorted({c for c in declared if declared.count(c) > 1})
+    if dup:
+        raise _fail(where, f"'audit.segments' names {dup} more than once; list each column once.")
     return Config(
         model=doc["model"],
         data=data,

@@ -17,9 +17,26 @@ import pandas as pd
 
 from topoaudit.config import Config
 from topoaudit.errors import DataError, LimitError, TopoauditError, closest_names, describe_rows
-from topoaudit.limits import MAX_CATEGORY_LEVELS, MAX_FEATURES, MAX_MAGNITUDE, MAX_ROWS
+from topoaudit.limits import (
+    MAX_CATEGORY_LEVELS,
+    MAX_FEATURES,
+    MAX_MAGNITUDE,
+    MAX_ROWS,
+    MAX_SEGMENT_LEVELS,
+)
 
-__all__ = ["Dataset", "fingerprint", "load_dataset", "prepare_dataset", "read_table"]
+__all__ = [
+    "MISSING_LEVEL",
+    "Dataset",
+    "fingerprint",
+    "load_dataset",
+    "prepare_dataset",
+    "read_table",
+]
+
+#: the level of a declared segment column that holds the rows without a value
+MISSING_LEVEL = "(missing)"
+
 
 
 @dataclass(frozen=True, eq=False)
@@ -42,6 +59,11 @@ class Dataset:
         sha256 of the rows and columns used (see :func:`fingerprint`).
     n_dropped : int
         Rows dropped for missing values (only with ``on_missing = "drop"``).
+    segments : DataFrame
+        The columns named in ``audit.segments``, one categorical column each: every row's
+        value as text (:data:`MISSING_LEVEL` where it has none), the categories in order
+        (numbers by value, text alphabetically, the missing level last). Not part of the
+        fingerprint: they group rows for the page and are not what the audit tests.
     """
 
     ids: np.ndarray
@@ -55,6 +77,7 @@ class Dataset:
     n_dropped: int = 0
     source: str = ""
     encoding: dict[str, Any] = field(default_factory=dict)
+    segments: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
     def n_rows(self) -> int:
@@ -179,6 +202,58 @@ def _missing_column(where: str, col: str, role: str, columns: list[str]) -> Data
     return DataError(f"{where}: the {role} column {col!r} is not in the file.{hint}")
 
 
+def _segment_label(value: float) -> str:
+    """A number as a level's text: ``3`` for a whole number, else its shortest repr."""
+    return str(int(value)) if float(value).is_integer() else repr(float(value))
+
+
+def _segment_levels(values: pd.Series, col: str, where: str) -> pd.Categorical:
+    """The values of a declared segment column as ordered text categories."""
+    missing = values.isna().to_numpy().copy()
+    if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
+        numbers = values.to_numpy(dtype=float, na_value=np.nan)
+        distinct = np.unique(numbers[~missing])
+        labels = [_segment_label(v) for v in distinct]
+        codes = np.full(values.size, len(labels), dtype=np.int64)
+        codes[~missing] = np.searchsorted(distinct, numbers[~missing])
+    else:
+        text = values.astype(str).to_numpy()
+        missing |= text == MISSING_LEVEL
+        labels = sorted(set(text[~missing].tolist()))
+        codes = np.full(values.size, len(labels), dtype=np.int64)
+        codes[~missing] = pd.Categorical(text[~missing], categories=labels).codes
+    categories = [*labels, MISSING_LEVEL] if missing.any() else labels
+    if len(categories) > MAX_SEGMENT_LEVELS:
+        msg = (
+            f"{where}: the column {col!r} named in audit.segments has {len(categories):,} "
+            f"distinct values; a segment column may have at most {MAX_SEGMENT_LEVELS} "
+            "(MAX_SEGMENT_LEVELS): bin it in the data file (bands of a number, rare values "
+            "grouped) and name the binned column in audit.segments."
+        )
+        raise LimitError(msg)
+    return pd.Categorical.from_codes(codes, categories=categories)
+
+
+def _segment_frame(frame: pd.DataFrame, names: tuple[str, ...], where: str) -> pd.DataFrame:
+    """The declared segment columns of ``frame`` (see :attr:`Dataset.segments`)."""
+    columns = [str(c) for c in frame.columns]
+    for col in names:
+        if col not in columns:
+            near = closest_names(col, columns, n=1)
+            hint = f" Did you mean {near[0]!r}?" if near else ""
+            shown = ", ".join(repr(c) for c in columns[:40])
+            more = f" and {len(columns) - 40:,} more" if len(columns) > 40 else ""
+            msg = (
+                f"{where}: the column {col!r} named in audit.segments is not in the file; "
+                f"its columns are {shown}{more}.{hint}"
+            )
+            raise DataError(msg)
+    return pd.DataFrame(
+        {col: _segment_levels(frame[col], col, where) for col in names},
+        index=pd.RangeIndex(frame.shape[0]),
+    )
+
+
 def _too_many_features(where: str, n: int, when: str) -> LimitError:
     return LimitError(
         f"{where}: {n} feature columns{when}; at most {MAX_FEATURES} are accepted "
@@ -222,6 +297,7 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
         raise DataError(f"{where}: no feature columns are left; name them in data.features.")
     if len(features) > MAX_FEATURES:
         raise _too_many_features(where, len(features), "")
+    segments = _segment_frame(frame, config.audit.segments, where)
 
     # one column may serve several releases; select each once
     used = list(dict.fromkeys([d.id, d.target, *[r.score for r in config.releases], *features]))
@@ -384,6 +460,7 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
         n_dropped=n_dropped,
         source=source,
         encoding=encoding,
+        segments=segments.iloc[kept].reset_index(drop=True),
     )
 
 

@@ -17,6 +17,19 @@ worth finding, and the graph at the settings chosen from the data (PCA filter) s
 
 The bulk's other columns (age, battery voltage, hardness, pressure) vary little around
 their typical values, so that the loop, not their spread, is the scale of the data.
+
+Two more columns are not features but the **declared segments** of the demo's config
+(``audit.segments``), the groups a reviewer asks about whatever the search finds:
+
+* ``district``, one of six invented districts. Hard water comes from the ground, so the
+  calcifying meters (hardness above 170 mg/l) lie mostly in the two chalk districts,
+  Brindle Hill and Chalkmere; the large-bore batch was fitted in one new estate,
+  Eastholm; every other meter is in any district alike;
+* ``material``, the meter body: old meters (ten years or more) are mostly brass, the
+  batch is composite, the others brass, composite or plastic.
+
+They are drawn after every other column, from the same seeded generator, so the features
+and the graph are those of the demo without them.
 """
 
 from __future__ import annotations
@@ -28,7 +41,7 @@ import pandas as pd
 
 from topoaudit._validation import random_generator
 
-__all__ = ["DEMO_CONFIG", "FEATURES", "make_meters", "write_demo_project"]
+__all__ = ["DEMO_CONFIG", "DISTRICTS", "FEATURES", "MATERIALS", "make_meters", "write_demo_project"]
 
 DEMO_CONFIG = """\
 # The invented demo: a water utility's model of household meter failure within 90 days.
@@ -39,7 +52,7 @@ seed = 7
 path = "meters.csv"
 id = "meter_id"
 target = "failed_90d"
-exclude = ["mechanism"]
+exclude = ["mechanism", "district", "material"]   # not features: reported as segments
 
 [[release]]
 name = "2026.1"
@@ -53,6 +66,9 @@ threshold = 0.5
 
 [graph]
 filter = "pca"           # intervals, overlap and clustering scale: chosen from the data
+
+[audit]
+segments = ["district", "material"]   # a table per column on the page
 """
 
 
@@ -80,6 +96,12 @@ FEATURES = (
 )
 
 
+#: the invented districts of the demo; the first two lie on chalk (hard water), the third
+#: is the new estate of the large-bore batch
+DISTRICTS = ("Brindle Hill", "Chalkmere", "Eastholm", "Alderwick", "Dunmarsh", "Fenwold")
+MATERIALS = ("brass", "composite", "plastic")
+
+
 def _sigmoid(z: np.ndarray) -> np.ndarray:
     return 1.0 / (1.0 + np.exp(-z))
 
@@ -91,7 +113,8 @@ def make_meters(n_rows: int = 6000, *, random_state: int = 7) -> pd.DataFrame:
     -------
     DataFrame with ``meter_id``, the columns of :data:`FEATURES`, ``mechanism`` (the
     generator's own label: ``"none"``, ``"battery"``, ``"calcification"`` or
-    ``"batch"``; not a feature), ``failed_90d`` (0 or 1) and the scores of two releases
+    ``"batch"``; not a feature), ``district`` and ``material`` (segments, not features;
+    see the module's docstring), ``failed_90d`` (0 or 1) and the scores of two releases
     of the failure model, ``score_2026_1`` and ``score_2026_2``.
     """
     rng = random_generator(random_state)
@@ -147,6 +170,7 @@ def make_meters(n_rows: int = 6000, *, random_state: int = 7) -> pd.DataFrame:
     score_1 = _sigmoid(logit - 3.0 * b * t**1.5 + jitter)
     score_2 = _sigmoid(logit - 2.4 * i + jitter)
     order = rng.permutation(n)
+    district, material = _segments(rng, hardness > 170, i, age)
     frame = pd.DataFrame(
         {
             "meter_id": [f"WM-{k:06d}" for k in range(n)],
@@ -160,9 +184,27 @@ def make_meters(n_rows: int = 6000, *, random_state: int = 7) -> pd.DataFrame:
             "hardness_mg_l": hardness[order],
             "pressure_bar": pressure[order],
             "mechanism": kind[order],
+            "district": district[order],
+            "material": material[order],
             "failed_90d": failed[order].astype(np.int64),
             "score_2026_1": np.round(score_1[order], 6),
             "score_2026_2": np.round(score_2[order], 6),
         }
     )
     return frame
+
+
+def _segments(
+    rng: np.random.Generator, hard: np.ndarray, batch: np.ndarray, age: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Each meter's district and body material (see the module's docstring)."""
+    n = hard.size
+    district = rng.choice(np.array(DISTRICTS), size=n)
+    on_chalk = hard & (rng.uniform(0, 1, n) < 0.8)
+    district[on_chalk] = rng.choice(np.array(DISTRICTS[:2]), size=int(on_chalk.sum()))
+    district[batch] = DISTRICTS[2]
+    material = rng.choice(np.array(MATERIALS), size=n, p=[0.3, 0.4, 0.3])
+    old = (age >= 10) & (rng.uniform(0, 1, n) < 0.85)
+    material[old] = MATERIALS[0]
+    material[batch] = MATERIALS[1]
+    return district, material

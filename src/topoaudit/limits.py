@@ -19,6 +19,7 @@ __all__ = [
     "MAX_NODES_DRAWN",
     "MAX_RELEASES",
     "MAX_ROWS",
+    "MAX_SEGMENT_LEVELS",
     "MAX_STABILITY_OFFSETS",
     "MIN_CELL_ROWS",
 ]
@@ -29,6 +30,9 @@ MAX_ROWS = 2_000_000
 MAX_FEATURES = 1_000
 #: Distinct values of one one-hot encoded categorical column.
 MAX_CATEGORY_LEVELS = 200
+#: Distinct values of one declared segment column (``audit.segments``): each is a row of a
+#: table on the page and a test of its own, so a column of more is binned first.
+MAX_SEGMENT_LEVELS = 50
 #: Largest magnitude accepted in the data and in filter values. Squared distances of values
 #: up to 1e150 apart, summed over a thousand columns, and sums of millions of them stay
 #: far below the largest float (about 1.8e308); larger values overflow to infinity.

@@ -160,10 +160,11 @@ KEY_VALUES: dict[tuple[str, str], st.SearchStrategy[Any]] = {
     ("audit", "local_model"): choices("logistic", "tree", "boosting", "ridge"),
     ("audit", "stability_intervals"): LIST_KEY,
     ("audit", "stability_overlaps"): LIST_KEY,
+    ("audit", "segments"): LIST_KEY,
     **{
         ("audit", k): NUM_KEY
         for k in AuditSettings._checks
-        if k not in ("local_model", "stability_intervals", "stability_overlaps")
+        if k not in ("local_model", "stability_intervals", "stability_overlaps", "segments")
     },
 }
 KNOWN_KEYS = sorted(KEY_VALUES)

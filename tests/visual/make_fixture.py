@@ -27,8 +27,9 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         path = write_demo_project(Path(tmp), 3000, seed=7)
         text = path.read_text(encoding="utf-8")
-        text += "\n[audit]\nstability_intervals = [0, 2]\nstability_overlaps = [0.0]\n"
-        path.write_text(text + "bootstrap_resamples = 1\n", encoding="utf-8")
+        light = "[audit]\nstability_intervals = [0, 2]\nstability_overlaps = [0.0]\n"
+        light += "bootstrap_resamples = 1\n"
+        path.write_text(text.replace("[audit]\n", light, 1), encoding="utf-8")
         config = load_config(path)
         for release in config.releases:
             audit = run_audit(

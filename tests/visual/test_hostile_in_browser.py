@@ -67,7 +67,7 @@ seed = 7
 path = "meters.csv"
 id = {_q(RENAMED["meter_id"])}
 target = {_q(RENAMED["failed_90d"])}
-exclude = ["mechanism"]
+exclude = ["mechanism", "material"]
 
 [data.categorical]
 district = "onehot"
@@ -87,6 +87,7 @@ overlap = 0.3
 resamples = 8
 
 [audit]
+segments = ["district"]
 stability_intervals = [0, 2]
 stability_overlaps = [0.0]
 bootstrap_resamples = 1

@@ -28,6 +28,7 @@ from topoaudit.audit.local import local_model_test
 from topoaudit.audit.metrics import error_mix, outcome_table
 from topoaudit.audit.regions import Partition, partition_graph
 from topoaudit.audit.search import SearchGraph, SearchSettings, search_graphs
+from topoaudit.audit.segments import declared_segments
 from topoaudit.audit.shape import describe_shape, place_on_features
 from topoaudit.audit.stability import stability_runs
 from topoaudit.audit.tasks import Task, task_named
@@ -470,6 +471,23 @@ def comparison(
     )
 
 
+def segment_records(inp: AuditInputs, losses: list[Losses]) -> tuple[rec.Segment, ...] | None:
+    """Each level of each column of ``audit.segments`` with its rows, the release's metrics
+    and its test against the other rows (see :mod:`topoaudit.audit.segments`); None when
+    no column is declared. A task whose headline metric has no interval of its own gets
+    200 percentile-bootstrap resamples per level."""
+    if not inp.config.audit.segments:
+        return None
+    resamples = 0 if inp.task.interval_metric else 200
+    return declared_segments(
+        inp.ds.segments,
+        losses[0].observed,
+        lambda rows: inp.metrics(rows, bootstrap=resamples),
+        counts=inp.task.counts,
+        fdr=inp.config.audit.fdr,
+    )
+
+
 def members_table(
     inp: AuditInputs, graph: MapperGraph, partition: Partition, found: Search, masks: dict
 ) -> pd.DataFrame:
@@ -626,6 +644,7 @@ def run_audit(
         summary=summary(found, weak, regions),
         comparison=comparison(inp, partition, found.losses),
         outcomes=table,
+        segments=segment_records(inp, found.losses),
     )
     return Audit(
         analysis=analysis,

@@ -4,7 +4,7 @@ Every file of a bundle that holds aggregates is one record here:
 
 * ``analysis.json`` is an :class:`Analysis` (global metrics, the outcome table, regions,
   weak regions with their local-model tests, candidates, stability, the release
-  comparison, provenance);
+  comparison, the declared segments, provenance);
 * ``graph.json`` is a :class:`GraphDocument` (nodes with their statistics, links).
 
 Producers build records and write them; consumers read records, never raw JSON, so a
@@ -65,6 +65,8 @@ __all__ = [
     "ReleaseChanges",
     "ScoreChange",
     "SearchGraphRecord",
+    "Segment",
+    "SegmentLevel",
     "ShapeColumn",
     "ShapeFeatureRecord",
     "ShapeRecord",
@@ -516,6 +518,40 @@ class WeakRegion(Candidate):
     error_mix: ErrorMix | None = omit_when_none()
 
 
+# -- declared segments ------------------------------------------------------------------------
+
+
+@record
+class SegmentLevel(_Record):
+    """One value of a declared segment column: its rows, the release's metrics there, and
+    its rows' mean loss (error rate, or mean squared error) tested against the other rows'
+    (``p_value``, two-sided; ``p_adjusted`` by Benjamini–Hochberg across every level of
+    every declared column). ``verdict`` is ``"worse"``, ``"better"``, ``"no clear
+    difference"`` or ``"not tested"`` (``note`` says why)."""
+
+    level: str
+    rows: int
+    metrics: Metrics
+    loss: Stat
+    rest_rows: int
+    rest_loss: Stat
+    p_value: Stat
+    p_adjusted: Stat
+    verdict: str
+    note: str
+
+
+@record
+class Segment(_Record):
+    """A column named in ``audit.segments`` and each of its levels, in the column's order
+    (numbers by value, text alphabetically, the missing level last); ``test`` names the
+    test of each level against the other rows."""
+
+    column: str
+    test: str
+    levels: tuple[SegmentLevel, ...]
+
+
 # -- the graph -------------------------------------------------------------------------------
 
 
@@ -806,6 +842,9 @@ class Analysis(_Record):
     extra: dict[str, Any] = field(default_factory=dict)
     #: classification: the outcome table (absent from bundles written before it was)
     outcomes: Outcomes | None = omit_when_none()
+    #: the columns of ``audit.segments`` (absent when none is declared, and from bundles
+    #: written before segments were)
+    segments: tuple[Segment, ...] | None = omit_when_none()
 
 
 # -- sign-offs of a published release ---------------------------------------------------

@@ -3,7 +3,8 @@
 Every output that leaves a bundle (the release page, the pull-request diff, the site)
 reads this view, not ``analysis.json`` itself. A *cell* is any group of rows behind a
 statistic: a graph node, a region, a weak region and each of its halves, a calibration
-bin, a region of the release comparison, a candidate region, a feature of the shape.
+bin, a region of the release comparison, a candidate region, a feature of the shape, a
+level of a declared segment column.
 A cell of fewer than :data:`~topoaudit.limits.MIN_CELL_ROWS` rows keeps its size and
 its name and loses every statistic: each becomes ``None``, which the pages print as
 "not shown". Its rows could otherwise be read back from a rate, a mean or a difference
@@ -94,6 +95,21 @@ def _thresholds(outcomes: dict[str, Any] | None) -> None:
             row["precision"] = None
 
 
+def _segment_levels(segments: list[dict[str, Any]] | None) -> None:
+    """A level of a declared segment column with fewer than MIN_CELL_ROWS rows, or fewer
+    other rows, keeps its name and both row counts and loses every statistic and its
+    verdict (a level beside few other rows would give those rows away, with the rate of
+    all rows)."""
+    for segment in segments or []:
+        for i, level in enumerate(segment.get("levels") or []):
+            small, rest_small = is_small(level.get("rows")), is_small(level.get("rest_rows"))
+            if small or rest_small:
+                blank = _blank(level, frozenset({"level", "rows", "rest_rows"}))
+                which = "rows" if small else "other rows"
+                note = f"fewer than {MIN_CELL_ROWS} {which}"
+                segment["levels"][i] = {**blank, "verdict": "not shown", "note": note}
+
+
 def public_view(analysis: Analysis | dict[str, Any]) -> Analysis:
     """``analysis`` (a record, or the parsed analysis.json) with small cells suppressed."""
     return Analysis.from_dict(_suppressed(analysis), "analysis.json (public view):")
@@ -128,6 +144,7 @@ def _suppressed(analysis: Analysis | dict[str, Any]) -> dict[str, Any]:
     if out.get("comparison"):
         _suppress(out["comparison"].get("regions"))
     _thresholds(out.get("outcomes"))
+    _segment_levels(out.get("segments"))
     shape = (out.get("graph") or {}).get("shape") or {}
     for f in shape.get("features") or []:
         if is_small(f.get("rows")):

@@ -56,6 +56,8 @@ from topoaudit.bundle.records import (
     LocalModelTest,
     Node,
     ScoreChange,
+    Segment,
+    SegmentLevel,
     ShapeFeatureRecord,
     ShapeRecord,
     WeakRegion,
@@ -294,6 +296,7 @@ def build_page(a: Analysis | dict[str, Any], graph: GraphDocument | dict[str, An
         *_graph_section(view, task, shown, charts),
         *_shape_section(view),
         *_regions_section(view, task, charts),
+        *_segments_section(view, task),
         *_calibration_section(view, task, charts),
         *_stability_section(view, charts),
         *_local_models_section(view, charts),
@@ -765,6 +768,65 @@ def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
             "",
         ]
     return lines
+
+
+#: the test of each level of a declared segment against the other rows, in words
+SEGMENT_TESTS = {
+    "fisher_exact": "Fisher's exact test (two-sided) of each row's error",
+    "welch_t": "Welch's t test (two-sided) of the squared errors",
+}
+
+
+def _segments_section(a: Analysis, task: Task) -> list[str]:
+    """The columns the configuration declares as segments: a table per column."""
+    if not a.segments:
+        return []
+    names = join_words([escape(s.column) for s in a.segments])
+    tests = join_words(sorted({SEGMENT_TESTS.get(s.test, escape(s.test)) for s in a.segments}))
+    lines = [
+        "## Declared segments",
+        "",
+        f"The configuration asks about the rows grouped by {names} (audit.segments). "
+        f"Each value is compared with all the other rows by {tests}, with "
+        "Benjamini–Hochberg across every value of every column: worse and better need an "
+        f"adjusted p-value of at most {a.config['audit']['fdr']}, the audit's false "
+        "discovery rate. These groups were named before the audit, not found by it, so "
+        "every row counts and no half is set aside.",
+        "",
+    ]
+    for segment in a.segments:
+        lines += _segment_table(segment, task)
+    return lines
+
+
+def _segment_table(segment: Segment, task: Task) -> list[str]:
+    """One declared column: each value's rows, headline metric and interval, the loss of
+    the other rows, the adjusted p-value and the verdict."""
+    key, label = task.headline
+    # the loss tested is the headline for a count task; else it gets a column of its own
+    loss_column = label != task.loss_words
+    head = f"| value | rows | {label} | 95% interval |"
+    head += f" {task.loss_words} |" if loss_column else ""
+    head += f" {task.loss_words} of the other rows | adjusted p-value | verdict |"
+    width = head.count("|") - 1
+    lines = [f"### {escape(segment.column)}", "", head, "|" + "---|" * width]
+    for level in segment.levels:
+        lines.append(_segment_row(level, key, loss_column, width))
+    return [*lines, ""]
+
+
+def _segment_row(level: SegmentLevel, key: str, loss_column: bool, width: int) -> str:
+    start = f"| {escape(level.level)} | {count(level.rows)} |"
+    if level.verdict == "not shown":
+        rest = [f"not shown ({escape(level.note)})"] + [""] * (width - 3)
+        return start + " " + " | ".join(rest) + " |"
+    est = level.metrics[key]
+    cells = [rate(est.value), _interval(est) if est.low is not None else "not computed"]
+    if loss_column:
+        cells.append(rate(level.loss))
+    verdict = level.verdict + (f" ({escape(level.note)})" if level.note else "")
+    cells += [rate(level.rest_loss), pvalue(level.p_adjusted), verdict]
+    return start + " " + " | ".join(cells) + " |"
 
 
 def _calibration_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
