@@ -1,7 +1,8 @@
 /* Turns each <figure class="ta-chart"> into an interactive chart.
-   The Vega-Lite spec is inlined in the page (a <script type="application/json">), so
-   pages work from a server and from disk alike; the static SVG stays as the fallback
-   when scripts are off or a chart cannot be drawn.
+   The site build inlines each chart's Vega-Lite spec in the page (a <script
+   type="application/json">), so pages work from a server and from disk alike; the
+   static SVG stays as the fallback when scripts are off, a chart cannot be drawn, or a
+   page holds no spec (a bundle's own page.md only names the spec file).
    Strings in a spec (column names, category values) are data: Vega draws them as text,
    and tooltips, which are HTML, get every value and title escaped here. */
 (function () {
@@ -15,7 +16,9 @@
     figures.forEach(function (figure) {
       if (figure.getAttribute("data-rendered")) { return; }
       var source = figure.querySelector("script.ta-spec");
-      if (!source || typeof window.vegaEmbed !== "function") { return; }
+      if (!source || !source.textContent.trim() || typeof window.vegaEmbed !== "function") {
+        return;
+      }
       var spec = JSON.parse(source.textContent);
       var holder = document.createElement("div");
       holder.className = "ta-view";

@@ -19,8 +19,10 @@ from pathlib import Path
 import markdown
 import pytest
 
+from topoaudit.bundle.files import canonical_json
 from topoaudit.report import views
 from topoaudit.report.diff import diff_markdown
+from topoaudit.report.figures import inline_specs
 from topoaudit.report.page import build_page
 from topoaudit.report.text import code_fence, escape, script_json
 
@@ -72,6 +74,12 @@ def _hostile_analysis() -> tuple[dict, dict]:
         s["settings"]["filter"] = f"Values({HOSTILE[0]})"
     a["graph"]["settings"]["filter"] = HOSTILE[5]
     a["graph"]["settings"]["cover"] = HOSTILE[6]
+    a["config"]["audit"]["segments"] = names[:2]
+    for i, segment in enumerate(a.get("segments") or []):
+        segment["column"] = names[i]
+        for j, level in enumerate(segment["levels"]):
+            level["level"] = names[-1 - j]
+            level["note"] = HOSTILE[j] if level["note"] else ""
     return a, g
 
 
@@ -172,11 +180,19 @@ def test_tables_keep_their_columns_whatever_the_cell_text(hostile_page):
         assert len(widths) == 1, f"a table's rows differ in width: {widths}\n{table[:800]}"
 
 
-def test_inlined_specs_cannot_close_their_script_element_and_read_back_equal(hostile_page):
+def test_inlined_specs_cannot_close_their_script_element_and_read_back_equal(
+    hostile_page, tmp_path
+):
+    # the bundle's page names each spec file; the site build inlines the specs
+    assert 'class="ta-spec">{' not in hostile_page.markdown
+    charts = tmp_path / "charts"
+    charts.mkdir()
+    for name, spec in hostile_page.charts.items():
+        (charts / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
     blocks = re.findall(
         r'<figure class="ta-chart" data-chart="(\w+)">.*?<script type="application/json" '
         r'class="ta-spec">(.*?)</script>',
-        hostile_page.markdown,
+        inline_specs(hostile_page.markdown, charts),
         flags=re.S,
     )
     assert {name for name, _ in blocks} == set(hostile_page.charts)

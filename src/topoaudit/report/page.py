@@ -1,10 +1,11 @@
 """The Markdown page of one analysis, and its charts.
 
-The page is built from ``analysis.json`` and ``graph.json`` alone. Each chart appears
-twice: as an SVG file rendered by vl-convert (so the Markdown reads in a pull-request
-diff) and as its Vega-Lite spec inlined in a ``<script type="application/json">`` block,
-which the site's chart loader turns into the interactive chart (inlined, because
-browsers refuse to fetch JSON from ``file://`` pages).
+The page is built from ``analysis.json`` and ``graph.json`` alone. Each chart is two
+files beside the page: an SVG rendered by vl-convert, which the page shows, and its
+Vega-Lite spec (``charts/<name>.vl.json``), which the page names and the site build
+inlines for the site's chart loader (:mod:`topoaudit.report.figures`). So that a diff of
+two releases' pages is read line by line, the page holds no spec, and its prose is
+written a sentence to a line (:func:`~topoaudit.report.text.wrap_prose`).
 
 Strings from the user's data or config are escaped where they land (see
 :mod:`topoaudit.report.text`): Markdown text, raw HTML and inlined JSON each have their own
@@ -63,6 +64,7 @@ from topoaudit.bundle.records import (
     WeakRegion,
 )
 from topoaudit.report import views
+from topoaudit.report.figures import chart_block
 from topoaudit.report.review import (
     candidates_section,
     error_mix_sentence,
@@ -82,8 +84,8 @@ from topoaudit.report.text import (
     plural,
     pvalue,
     rate,
-    script_json,
     signed,
+    wrap_prose,
 )
 from topoaudit.wording import join_words
 
@@ -269,15 +271,6 @@ def _graph_frames(graph: GraphDocument) -> tuple[pd.DataFrame, pd.DataFrame]:
     return nodes, edges
 
 
-def _chart_block(name: str, spec: dict[str, Any], alt_text: str) -> str:
-    return (
-        f'<figure class="ta-chart" data-chart="{html_text(name)}">\n'
-        f'<img src="charts/{html_text(name)}.svg" alt="{html_text(alt_text)}">\n'
-        f'<script type="application/json" class="ta-spec">{script_json(spec)}</script>\n'
-        "</figure>\n"
-    )
-
-
 # -- the page, section by section ----------------------------------------------------------
 
 
@@ -304,7 +297,7 @@ def build_page(a: Analysis | dict[str, Any], graph: GraphDocument | dict[str, An
         *_cautions_section(view),
         *_reproduce_section(view),
     ]
-    return Page("\n".join(lines), charts)
+    return Page(wrap_prose("\n".join(lines)), charts)
 
 
 def _title_section(a: Analysis, task: Task) -> list[str]:
@@ -576,7 +569,7 @@ def _graph_section(a: Analysis, task: Task, graph: GraphDocument, charts: Charts
             + " drawn grey, without rates or mean score, so that no row's own values show.",
             "",
         ]
-    lines.append(_chart_block("graph", charts["graph"], "Mapper graph of the validation data"))
+    lines.append(chart_block("graph", "Mapper graph of the validation data"))
     return lines
 
 
@@ -741,7 +734,7 @@ def _regions_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
         charts["regions"] = views.region_error_view(
             reg, overall=overall.value, metric_title=label
         ).to_dict()
-        lines.append(_chart_block("regions", charts["regions"], f"{label} by region"))
+        lines.append(chart_block("regions", f"{label} by region"))
     promised = task.counts and any(r.promised_error_rate is not None for r in a.regions)
     extra = " error rate its scores promise |" if promised else ""
     lines += [
@@ -847,7 +840,7 @@ def _calibration_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
     if not bins.empty:
         charts["calibration"] = views.calibration_view(bins).to_dict()
         lines += [
-            _chart_block("calibration", charts["calibration"], "calibration curves by region"),
+            chart_block("calibration", "calibration curves by region"),
             "",
         ]
     return lines
@@ -869,7 +862,7 @@ def _stability_section(a: Analysis, charts: Charts) -> list[str]:
         "## Stability",
         "",
         *_stability_words(a),
-        _chart_block("stability", charts["stability"], "stability of weak regions"),
+        chart_block("stability", "stability of weak regions"),
         "",
     ]
 
@@ -943,7 +936,7 @@ def _local_models_section(a: Analysis, charts: Charts) -> list[str]:
             else "."
         ),
         "",
-        _chart_block("local_models", charts["local_models"], "local model results"),
+        chart_block("local_models", "local model results"),
         "",
     ]
 
@@ -1028,7 +1021,7 @@ def _comparison_section(a: Analysis, task: Task, charts: Charts) -> list[str]:
             ch, baseline=comp.baseline, candidate=comp.candidate
         ).to_dict()
         lines += [
-            _chart_block("comparison", charts["comparison"], "change in error by region"),
+            chart_block("comparison", "change in error by region"),
             "",
         ]
     return lines

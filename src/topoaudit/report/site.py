@@ -35,6 +35,7 @@ from topoaudit.report.archive import (
     staging,
 )
 from topoaudit.report.diff import diff_markdown
+from topoaudit.report.figures import inline_specs
 from topoaudit.report.text import count, escape, rate
 
 __all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish", "signoff_words"]
@@ -218,7 +219,8 @@ def _build_into(
         section: list[Any] = [{"Release history": f"{model}/index.md"}]
         for i, r in enumerate(rels):
             page_dir = docs / model / r.release
-            text = (r.folder / "page.md").read_text(encoding="utf-8")
+            page = (r.folder / "page.md").read_text(encoding="utf-8")
+            text = inline_specs(page, r.folder / "charts")  # the interactive charts' specs
             text += signoff_section(signoffs(r.folder))
             if row_ids:
                 text += _row_list(r.folder, page_dir)
