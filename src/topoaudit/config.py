@@ -45,6 +45,7 @@ __all__ = [
     "AuditSettings",
     "Config",
     "DataSettings",
+    "GatePolicy",
     "GraphSettings",
     "Release",
     "load_config",
@@ -123,16 +124,19 @@ class DataSettings:
 
 @dataclass(frozen=True)
 class Release:
-    """One model release: the column holding its scores and its decision threshold."""
+    """One model release: the column holding its scores and its decision threshold, and
+    the data file it is validated on when not the ``[data]`` one (a newer window, say)."""
 
     name: str
     score: str
     threshold: float = 0.5
+    data: Path | None = None
 
     _checks = {
         "name": [_NAME],
         "score": [_STR],
         "threshold": [Interval(float, 0.0, 1.0, closed="neither")],
+        "data": [_STR],
     }
     _required = ("name", "score")
 
@@ -214,6 +218,41 @@ class AuditSettings:
     _required = ()
 
 
+GATE_RULES = ("introduced", "returned", "worse", "still weak", "missed before", "metric")
+_RULES = Kind(
+    lambda v: isinstance(v, list) and all(isinstance(r, str) and r in GATE_RULES for r in v),
+    "a list of rules from " + ", ".join(repr(r) for r in GATE_RULES),
+)
+
+
+@dataclass(frozen=True)
+class GatePolicy:
+    """What fails a release at ``topoaudit gate`` (:mod:`topoaudit.report.gate`).
+
+    ``fail_on``: the outcomes that fail it: a weak region ``"introduced"`` by the release,
+    one that ``"returned"``, an earlier one that got ``"worse"`` or is ``"still weak"``,
+    a new one that was weak before too (``"missed before"``), and ``"metric"``: the main
+    metric rose by more than ``metric_tolerance`` with a one-sided test at ``alpha``.
+    """
+
+    fail_on: tuple[str, ...] = ("introduced", "returned", "worse", "metric")
+    metric_tolerance: float = 0.01
+    alpha: float = 0.05
+
+    _checks = {
+        "fail_on": [_RULES],
+        "metric_tolerance": [Interval(float, 0.0, None)],
+        "alpha": [Interval(float, 0.0, 1.0, closed="neither")],
+    }
+    _required = ()
+
+
+def gate_policy(table: Any, where: str) -> GatePolicy:
+    """The :class:`GatePolicy` of a ``[gate]`` table (plain data, as analysis.json records
+    it); an unknown key or a bad value names it and what is accepted."""
+    return _section(where, "gate", GatePolicy, table)
+
+
 @dataclass(frozen=True)
 class Config:
     """Everything one audit needs."""
@@ -223,8 +262,13 @@ class Config:
     releases: tuple[Release, ...]
     graph: GraphSettings = field(default_factory=GraphSettings)
     audit: AuditSettings = field(default_factory=AuditSettings)
+    gate: GatePolicy = field(default_factory=GatePolicy)
     seed: int = 0
     source: Path | None = None
+
+    def data_path(self, release: Release) -> Path:
+        """The data file ``release`` is validated on."""
+        return Path(release.data) if release.data is not None else Path(self.data.path)
 
     def release(self, name: str) -> Release:
         for r in self.releases:
@@ -250,12 +294,20 @@ class Config:
 
         out = plain(self)
         out.pop("source", None)
+        for r in out["releases"]:  # a release on the [data] file names no file of its own
+            if r.get("data") is None:
+                r.pop("data", None)
         return out
 
 
 _TOP = {"model": [_NAME], "seed": [Interval(int, 0, 2**32 - 1)]}
-_SECTIONS = {"data": DataSettings, "graph": GraphSettings, "audit": AuditSettings}
-_TOP_KEYS = ("model", "seed", "data", "release", "graph", "audit")
+_SECTIONS = {
+    "data": DataSettings,
+    "graph": GraphSettings,
+    "audit": AuditSettings,
+    "gate": GatePolicy,
+}
+_TOP_KEYS = ("model", "seed", "data", "release", "graph", "audit", "gate")
 
 
 def _fail(where: str, msg: str) -> ConfigError:
@@ -300,6 +352,11 @@ def _section(where: str, prefix: str, cls: type, table: Any) -> Any:
     return cls(**values)
 
 
+def _resolved(path: str | Path, base: Path) -> Path:
+    path = Path(path)
+    return path if path.is_absolute() else base / path
+
+
 def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> Config:
     """Build a :class:`Config` from a parsed TOML document; relative data paths are read
     relative to the config file's folder."""
@@ -323,8 +380,7 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
         if dup:
             raise _fail(where, f"'data.{key}' names {dup} more than once; list each column once.")
     base = Path(source).parent if source != "<config>" else Path(".")
-    path = Path(data.path)
-    data = dataclasses.replace(data, path=path if path.is_absolute() else base / path)
+    data = dataclasses.replace(data, path=_resolved(data.path, base))
     if data.id == data.target:
         raise _fail(
             where,
@@ -342,6 +398,10 @@ def parse_config(doc: Mapping[str, Any], *, source: str | Path = "<config>") -> 
         raise LimitError(msg)
     releases = tuple(
         _section(where, f"release[{i}]", Release, r) for i, r in enumerate(releases_doc)
+    )
+    releases = tuple(
+        r if r.data is None else dataclasses.replace(r, data=_resolved(r.data, base))
+        for r in releases
     )
     names = [r.name for r in releases]
     if len(set(names)) != len(names):

@@ -7,6 +7,7 @@ what would be accepted.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -36,7 +37,6 @@ __all__ = [
 
 #: the level of a declared segment column that holds the rows without a value
 MISSING_LEVEL = "(missing)"
-
 
 
 @dataclass(frozen=True, eq=False)
@@ -464,7 +464,13 @@ def prepare_dataset(frame: pd.DataFrame, config: Config, *, source: str = "<fram
     )
 
 
-def load_dataset(config: Config) -> Dataset:
-    """Read the config's data file and prepare it (see :func:`prepare_dataset`)."""
-    path = Path(config.data.path)
+def load_dataset(config: Config, release: str | None = None) -> Dataset:
+    """Read the data file of ``release`` (default: the config's last release) and prepare
+    it (see :func:`prepare_dataset`). A file holds the scores of the releases validated on
+    it: those that name it, or, for the ``[data]`` file, those that name no file."""
+    rel = config.release(release) if release else config.releases[-1]
+    path = config.data_path(rel)
+    on_file = tuple(r for r in config.releases if config.data_path(r) == path)
+    if len(on_file) != len(config.releases):
+        config = dataclasses.replace(config, releases=on_file)
     return prepare_dataset(read_table(path), config, source=str(path))

@@ -26,6 +26,7 @@ from topoaudit.audit.compare import compare_releases
 from topoaudit.audit.describe import describe_region
 from topoaudit.audit.local import local_model_test
 from topoaudit.audit.metrics import error_mix, outcome_table
+from topoaudit.audit.newdata import Placed, place_on_previous
 from topoaudit.audit.regions import Partition, partition_graph
 from topoaudit.audit.search import SearchGraph, SearchSettings, search_graphs
 from topoaudit.audit.segments import declared_segments
@@ -121,16 +122,18 @@ def prepare(
     release: str | None = None,
     progress: Progress | None = None,
 ) -> AuditInputs:
-    """Load the data (unless given) and pick the release and the one before it."""
-    ds = dataset if dataset is not None else load_dataset(config)
+    """Load the release's data (unless given) and pick the release and the one before it;
+    the one before is compared with it row by row only when its scores are on these rows."""
     rel = config.release(release) if release else config.releases[-1]
+    ds = dataset if dataset is not None else load_dataset(config, rel.name)
     index = [r.name for r in config.releases].index(rel.name)
     X = StandardScaler().fit_transform(ds.X) if config.graph.standardize else ds.X
+    before = config.releases[index - 1] if index > 0 else None
     return AuditInputs(
         config=config,
         ds=ds,
         release=rel,
-        baseline=config.releases[index - 1] if index > 0 else None,
+        baseline=before if before is not None and before.name in ds.scores else None,
         task=task_named(ds.task),
         X=X,
         say=progress or (lambda _message: None),
@@ -491,9 +494,12 @@ def segment_records(inp: AuditInputs, losses: list[Losses]) -> tuple[rec.Segment
 def members_table(
     inp: AuditInputs, graph: MapperGraph, partition: Partition, found: Search, masks: dict
 ) -> pd.DataFrame:
-    """The row-level table (bundle only): each row's nodes, region, weak regions, half."""
+    """The row-level table (bundle only): each row's nodes, region, weak regions, half, and
+    its observed and promised loss of the main kind (error, or squared error), which the
+    review across releases reads (:mod:`topoaudit.audit.lineage`)."""
     indptr, nodes = graph.row_nodes()
     n = inp.ds.n_rows
+    main = found.losses[0]
     return pd.DataFrame(
         {
             "id": inp.ds.ids,
@@ -501,6 +507,8 @@ def members_table(
             "region": partition.row_region,
             "weak_regions": [[wid for wid, mk in masks.items() if mk[r]] for r in range(n)],
             "half": np.where(found.discovery, "discovery", "confirmation"),
+            "loss": main.observed,
+            "promised": main.expected,
         }
     )
 
@@ -582,6 +590,41 @@ def summary(found: Search, weak: list, regions: tuple) -> rec.Summary:
 # -- the sequence -------------------------------------------------------------------------------
 
 
+def placed_rows(inp: AuditInputs, previous: str | Path | None) -> Placed | None:
+    """The release's rows on the graph of the bundle ``previous``, when the two releases
+    ran on different data files (None when there is no such bundle or no need)."""
+    if previous is None:
+        return None
+    from topoaudit.bundle.files import read_analysis
+
+    earlier = read_analysis(previous)
+    if earlier.provenance.fingerprint == inp.ds.fingerprint:
+        return None  # the same rows: the review follows regions by row id
+    inp.step(1, f"placing the rows on the graph of release {earlier.release}")
+    return place_on_previous(inp.config, inp.ds, previous, prepare, shown_graph)
+
+
+def drift_record(placed: Placed | None) -> rec.Drift | None:
+    """The record of :func:`placed_rows` (None without placed rows)."""
+    if placed is None:
+        return None
+
+    def shift(s) -> rec.ShiftRecord:
+        return rec.ShiftRecord(
+            s.part, s.rows_before, s.rows_after, s.share_before, s.share_after,
+            s.p_value, s.p_adjusted,
+        )  # fmt: skip
+
+    return rec.Drift(
+        previous=placed.previous,
+        rows_before=placed.rows_before,
+        rows_after=placed.placement.n_rows,
+        outside=int(placed.placement.outside.size),
+        regions=tuple(shift(s) for s in placed.regions),
+        nodes=tuple(shift(s) for s in placed.nodes),
+    )
+
+
 def run_audit(
     config: Config,
     dataset: Dataset | None = None,
@@ -589,13 +632,17 @@ def run_audit(
     release: str | None = None,
     progress: Progress | None = None,
     command: str = "",
+    previous: str | Path | None = None,
 ) -> Audit:
     """Audit one release of ``config`` (by default its last) on its data.
 
     When the config names an earlier release, the audited release is also compared with
-    the one just before it, on the same rows.
+    the one just before it, on the same rows. When the release has a data file of its own
+    and ``previous`` is the earlier release's bundle, its rows are placed on that
+    release's graph (:mod:`topoaudit.audit.newdata`).
     """
     inp = prepare(config, dataset, release=release, progress=progress)
+    placed = placed_rows(inp, previous)
     ds = inp.ds
     size = f"{plural(ds.n_rows, 'row')} x {plural(ds.X.shape[1], 'feature')}"
     inp.step(1, f"building the graph of {size}")
@@ -645,9 +692,13 @@ def run_audit(
         comparison=comparison(inp, partition, found.losses),
         outcomes=table,
         segments=segment_records(inp, found.losses),
+        drift=drift_record(placed),
     )
+    members = members_table(inp, graph, partition, found, masks)
+    if placed is not None:
+        members["placed_on"] = placed.placed_on
     return Audit(
         analysis=analysis,
         graph=graph_document(inp, graph, partition, found.losses, masks),
-        members=members_table(inp, graph, partition, found, masks),
+        members=members,
     )

@@ -39,6 +39,7 @@ __all__ = [
     "CategoryContrast",
     "Comparison",
     "Description",
+    "Drift",
     "ErrorMix",
     "Estimate",
     "FeatureContrast",
@@ -70,6 +71,7 @@ __all__ = [
     "ShapeColumn",
     "ShapeFeatureRecord",
     "ShapeRecord",
+    "ShiftRecord",
     "SignOff",
     "Stability",
     "StabilityRun",
@@ -552,6 +554,38 @@ class Segment(_Record):
     levels: tuple[SegmentLevel, ...]
 
 
+# -- new rows on an earlier graph -------------------------------------------------------------
+
+
+@record
+class ShiftRecord(_Record):
+    """One region or node of the earlier graph: its rows then (the earlier release's) and
+    now (this release's rows placed there), their shares and the chi-square test of the two
+    shares, adjusted by Benjamini–Hochberg across the regions (or nodes)."""
+
+    part: int
+    rows_before: int
+    rows_after: int
+    share_before: float
+    share_after: float
+    p_value: Stat
+    p_adjusted: Stat
+
+
+@record
+class Drift(_Record):
+    """This release's rows placed on the graph of the release before it
+    (:mod:`topoaudit.audit.newdata`): how many, how many lie beyond every cover element's
+    span, and the shift per region and per node."""
+
+    previous: str
+    rows_before: int
+    rows_after: int
+    outside: int
+    regions: tuple[ShiftRecord, ...]
+    nodes: tuple[ShiftRecord, ...]
+
+
 # -- the graph -------------------------------------------------------------------------------
 
 
@@ -845,6 +879,9 @@ class Analysis(_Record):
     #: the columns of ``audit.segments`` (absent when none is declared, and from bundles
     #: written before segments were)
     segments: tuple[Segment, ...] | None = omit_when_none()
+    #: a release on a data file of its own: its rows on the earlier release's graph
+    #: (absent when it ran on the earlier release's rows, or had no release before)
+    drift: Drift | None = omit_when_none()
 
 
 # -- sign-offs of a published release ---------------------------------------------------

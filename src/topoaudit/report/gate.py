@@ -31,6 +31,7 @@ from topoaudit.audit.stats import binomial_upper_test
 from topoaudit.bundle import MIN_CELL_ROWS, is_small
 from topoaudit.config import GatePolicy
 from topoaudit.errors import BundleError
+from topoaudit.report.cautions import caution_lines
 from topoaudit.report.text import escape, pvalue, rate
 from topoaudit.wording import count, plural
 
@@ -197,8 +198,8 @@ def review_sections(
             "promise there, rescaled so the totals agree (1.00x: as promised).",
             "",
             f"| tracked region | where (rule of {escape(step.before)}) | rows then / now | "
-            "observed / promised then | observed / promised now | adjusted p-value, still "
-            "weak | fate |",
+            "observed / promised then | observed / promised now | adjusted p-values: still "
+            "weak; better than then; worse than then | fate |",
             "|---|---|---|---|---|---|---|",
         ]
         for f in step.fates:
@@ -206,11 +207,12 @@ def review_sections(
             lines.append(
                 f"| {f.tracked} ({escape(f.before_id)}) | {_where(before, f.before_id)} | "
                 f"{count(f.before.rows if f.before else 0)} / {rows_now} | "
-                f"{_ratio(f.before)} | {_ratio(f.after)} | {pvalue(f.q_still)} | "
+                f"{_ratio(f.before)} | {_ratio(f.after)} | {pvalue(f.q_still)}; "
+                f"{pvalue(f.q_better)}; {pvalue(f.q_worse)} | "
                 f"**{FATE_WORDS[f.fate]}** |"
             )
         lines.append("")
-    return lines + _origin_lines(step, before, after, heading)
+    return lines + _origin_lines(step, before, after, heading) + caution_lines(heading, review=True)
 
 
 def _origin_lines(step: Step, before: ReleaseRows, after: ReleaseRows, heading: str) -> list[str]:

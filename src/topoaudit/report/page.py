@@ -64,6 +64,7 @@ from topoaudit.bundle.records import (
     WeakRegion,
 )
 from topoaudit.report import views
+from topoaudit.report.cautions import STANDING_CAUTIONS
 from topoaudit.report.figures import chart_block
 from topoaudit.report.review import (
     candidates_section,
@@ -94,22 +95,6 @@ __all__ = ["MIN_CELL_ROWS", "Page", "build_page", "drawn_graph", "node_layout", 
 #: Fewest rows behind any rate, mean or description a page shows (small-cell suppression).
 NOT_SHOWN = f"not shown (fewer than {MIN_CELL_ROWS} rows)"
 
-STANDING_CAUTIONS = (
-    "**Sample sizes.** Every estimate on this page comes from a finite sample; small "
-    "regions have wide intervals, and a region's rate can move a lot between samples.",
-    "**Multiple testing.** Many candidate regions were searched for; findings are "
-    "controlled for the false discovery rate (Benjamini–Hochberg) across all candidates "
-    "tested, which limits, but does not remove, the chance that a finding is spurious.",
-    "**Settings dependence.** A Mapper graph depends on its filter function, cover and "
-    "clusterer. The stability section shows how often each weak region is found again "
-    "under other settings and subsamples; a region found rarely is a weak lead.",
-    "**Regions are not causes.** A region describes where errors concentrate, in terms "
-    "of the features; it does not say why, and the surrogate rules are approximations.",
-    "**Not a fairness certification.** This audit does not test any fairness criterion "
-    "and does not show that a model treats any group fairly.",
-    "**Policy.** These findings inform, and do not replace, the review that your "
-    "organisation's model-risk policy and the regulation that applies require.",
-)
 
 #: the charts of a page, name -> Vega-Lite spec; each section adds its own
 Charts = dict[str, dict[str, Any]]

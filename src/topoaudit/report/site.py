@@ -19,9 +19,11 @@ from pathlib import Path
 from typing import Any
 
 from topoaudit.audit.changes import release_changes
+from topoaudit.audit.lineage import Lineage, ReleaseRows, follow, load_release
 from topoaudit.audit.tasks import task_named
 from topoaudit.bundle.files import build_date, canonical_json, read_members
 from topoaudit.bundle.records import SignOff
+from topoaudit.errors import TopoauditError
 from topoaudit.progress import Progress
 from topoaudit.report.archive import (
     ArchiveError,
@@ -36,6 +38,8 @@ from topoaudit.report.archive import (
 )
 from topoaudit.report.diff import diff_markdown
 from topoaudit.report.figures import inline_specs
+from topoaudit.report.gate import review_sections
+from topoaudit.report.history import history_charts, history_page, write_charts
 from topoaudit.report.text import count, escape, rate
 
 __all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish", "signoff_words"]
@@ -126,11 +130,9 @@ def signoff_section(records: list[SignOff]) -> str:
     return "\n".join([*lines, ""])
 
 
-def _history_page(model: str, rels: list[PublishedRelease]) -> str:
+def _release_table(rels: list[PublishedRelease]) -> list[str]:
     headline_key, headline = task_named(rels[0].analysis.task).headline
     lines = [
-        f"# {escape(model)}: release history",
-        "",
         "Newest first. Each release links to its audit page; the sign-off is the latest "
         "reviewer's decision on it.",
         "",
@@ -149,7 +151,34 @@ def _history_page(model: str, rels: list[PublishedRelease]) -> str:
             f"{rate(auc and auc.value)} | {a.summary.weak_regions} | "
             f"{signoff_words(signoffs(r.folder))} | {compare} |"
         )
-    return "\n".join(lines) + "\n"
+    return lines
+
+
+def _follow(rels: list[PublishedRelease]) -> tuple[Lineage | None, dict[str, ReleaseRows]]:
+    """The weak regions of ``rels`` (newest first) followed from the oldest, and each
+    release's rows; (None, {}) when they cannot be (a bundle without its row table)."""
+    try:
+        rows = {r.release: load_release(r.folder) for r in rels}
+        return follow([rows[r.release] for r in reversed(rels)]), rows
+    except TopoauditError as exc:
+        log.warning("weak regions of %s not followed: %s", rels[0].analysis.model, exc)
+        return None, {}
+
+
+def _history(docs: Path, model: str, rels: list[PublishedRelease], lineage) -> None:
+    charts = history_charts(lineage, [r.analysis for r in reversed(rels)])
+    write_charts(docs / model / "charts", charts)
+    text = history_page(model, _release_table(rels), lineage, charts)
+    _write(docs / model / "index.md", inline_specs(text, docs / model / "charts"))
+
+
+def _compare_page(prev: PublishedRelease, r: PublishedRelease, lineage, rows) -> str:
+    d = release_changes(prev.folder, r.folder)
+    step = lineage.step_to(r.release) if lineage is not None else None
+    regions = None
+    if step is not None:
+        regions = review_sections(lineage, step, rows[prev.release], rows[r.release])
+    return diff_markdown(d, heading="#", regions=regions)
 
 
 def _write(path: Path, text: str) -> None:
@@ -215,7 +244,8 @@ def _build_into(
         if not rels:
             continue
         log.info("building pages of model %s (%d releases)", model, len(rels))
-        _write(docs / model / "index.md", _history_page(model, rels))
+        lineage, rows = _follow(rels)
+        _history(docs, model, rels, lineage)
         section: list[Any] = [{"Release history": f"{model}/index.md"}]
         for i, r in enumerate(rels):
             page_dir = docs / model / r.release
@@ -229,9 +259,8 @@ def _build_into(
             section.append({f"Release {r.release}": f"{model}/{r.release}/index.md"})
             if i + 1 < len(rels):
                 prev = rels[i + 1]
-                d = release_changes(prev.folder, r.folder)
                 name = f"{prev.release}-to-{r.release}.md"
-                _write(docs / model / "compare" / name, diff_markdown(d, heading="#"))
+                _write(docs / model / "compare" / name, _compare_page(prev, r, lineage, rows))
                 section.append({f"{r.release} against {prev.release}": f"{model}/compare/{name}"})
         nav.append({model: section})
         latest = rels[0].analysis

@@ -340,3 +340,73 @@ def stability_view(runs: pd.DataFrame) -> alt.Chart:
         )
         .properties(title="Do the weak regions survive other settings and samples?")
     )
+
+
+def release_trend_view(frame: pd.DataFrame, *, metric_title: str) -> alt.LayerChart:
+    """A metric of every release (``release``, ``value``, ``low``, ``high``), oldest at the
+    top, with its 95% interval."""
+    return _interval_chart(
+        frame,
+        category="release",
+        category_title="release",
+        value="value",
+        value_title=f"{metric_title} (95% interval)",
+        title=f"{metric_title} by release, oldest first",
+        reference=None,
+        reference_label="",
+    )
+
+
+#: the statuses of weak regions across releases, in the order a legend lists them
+STATUSES = (
+    "in the first audit",
+    "found again",
+    "introduced",
+    "returned",
+    "weak before, missed then",
+    "fixed since the release before",
+    "gone, not shown fixed",
+)
+
+
+def region_status_view(counts: pd.DataFrame) -> alt.Chart:
+    """Weak regions by status in every release (``release``, ``status``, ``regions``)."""
+    use_theme()
+    palette = ["#3b3f46", COLOURS["muted"], COLOURS["accent"], COLOURS["weak"], "#e0a174"]
+    palette += [COLOURS["good"], "#8fb3cf"]
+    return (
+        alt.Chart(counts)
+        .mark_bar()
+        .encode(
+            y=alt.Y("release:N", title="release", sort=None),
+            x=alt.X("regions:Q", title="weak regions", axis=alt.Axis(tickMinStep=1, format="d")),
+            color=alt.Color(
+                "status:N", title="status", scale=alt.Scale(domain=list(STATUSES), range=palette)
+            ),
+            order=alt.Order("order:Q"),
+            tooltip=["release:N", "status:N", "regions:Q"],
+        )
+        .properties(width=560, title="Weak regions of each release, and those it fixed")
+    )
+
+
+def drift_view(frame: pd.DataFrame) -> alt.Chart:
+    """The population shift of each release validated on new rows (``release``,
+    ``region``, ``change`` in percentage points, ``shifted`` yes/no)."""
+    use_theme()
+    return (
+        alt.Chart(frame)
+        .mark_bar()
+        .encode(
+            y=alt.Y("region:N", title="region of the earlier graph", sort=None),
+            x=alt.X("change:Q", title="share of rows now less then (percentage points)"),
+            row=alt.Row("release:N", title="release", sort=None),
+            color=alt.Color(
+                "shifted:N",
+                title="shift (BH-adjusted p at most 0.05)",
+                scale=alt.Scale(domain=["yes", "no"], range=[COLOURS["accent"], "#e9e4da"]),
+            ),
+            tooltip=["release:N", "region:N", alt.Tooltip("change:Q", format=".1f"), "shifted:N"],
+        )
+        .properties(width=480, title="Where the rows moved, release by release")
+    )
