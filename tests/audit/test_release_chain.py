@@ -162,3 +162,15 @@ def test_placing_the_first_files_own_rows_reproduces_the_graph(chain):
     got = [placed.placement.nodes_of(r).tolist() for r in range(ds.n_rows)]
     assert got == [list(v) for v in nodes]
     assert all(s.p_value == pytest.approx(1.0) for s in placed.regions)
+
+
+def test_the_release_page_shows_the_shift_region_by_region(chain):
+    _first, _second, bundles = chain
+    page = (bundles["r2"] / "page.md").read_text(encoding="utf-8")
+    assert "## Population shift since release r1" in page
+    drift = load_release(bundles["r2"]).analysis.drift
+    for s in drift.regions:
+        row = next(line for line in page.splitlines() if line.startswith(f"| region {s.part} |"))
+        if s.rows_before >= 10 and s.rows_after >= 10:
+            assert f"{(s.share_after - s.share_before) * 100:+.1f}" in row
+    assert "## Population shift" not in (bundles["r3"] / "page.md").read_text(encoding="utf-8")

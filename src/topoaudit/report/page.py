@@ -68,6 +68,7 @@ from topoaudit.report.cautions import STANDING_CAUTIONS
 from topoaudit.report.figures import chart_block
 from topoaudit.report.review import (
     candidates_section,
+    drift_section,
     error_mix_sentence,
     graph_words,
     half_table,
@@ -279,6 +280,7 @@ def build_page(a: Analysis | dict[str, Any], graph: GraphDocument | dict[str, An
         *_stability_section(view, charts),
         *_local_models_section(view, charts),
         *_comparison_section(view, task, charts),
+        *drift_section(view),
         *_cautions_section(view),
         *_reproduce_section(view),
     ]

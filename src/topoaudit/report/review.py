@@ -28,6 +28,7 @@ __all__ = [
     "GRAPH_WORDS",
     "KIND_WORDS",
     "candidates_section",
+    "drift_section",
     "error_mix_sentence",
     "graph_words",
     "half_table",
@@ -290,3 +291,61 @@ def _candidate_row(i: int, c: Candidate, weak: tuple[WeakRegion, ...]) -> str:
         f"| {i} | {graph_words(c.graph)}, {kind_words(c.kind)} | {count(c.rows)} | {where} | "
         f"{count(half.rows)} | {ratio} | {p} | {outcome} |"
     )
+
+
+#: a part of the earlier graph whose share moved with an adjusted p-value at most this
+SHIFT_LEVEL = 0.05
+
+
+def _share(rows: int, share: float) -> str:
+    return NOT_SHOWN_SHORT if is_small(rows) and rows else f"{share * 100:.1f}%"
+
+
+NOT_SHOWN_SHORT = f"not shown (fewer than {MIN_CELL_ROWS} rows)"
+
+
+def drift_section(a: Analysis) -> list[str]:
+    """The population shift of a release validated on a data file of its own: its rows
+    on the graph of the release before, region by region (none when it ran on the earlier
+    release's rows)."""
+    d = a.drift
+    if d is None:
+        return []
+    prev = escape(d.previous)
+    shifted = [s for s in d.regions if not is_missing(s.p_adjusted) and s.p_adjusted <= SHIFT_LEVEL]
+    nodes = [s for s in d.nodes if not is_missing(s.p_adjusted) and s.p_adjusted <= SHIFT_LEVEL]
+    lines = [
+        f"## Population shift since release {prev}",
+        "",
+        f"This release was validated on a data file of its own. Its {count(d.rows_after)} "
+        f"rows were placed on the graph of release {prev} ({count(d.rows_before)} rows): "
+        "each took the filter value the earlier filter gives it, the cover elements whose "
+        "rows span that value, and there the node of its nearest earlier row"
+        + (
+            f"; {plural(d.outside, 'row')} lay beyond every element's span and each took the "
+            "nodes of its nearest earlier row"
+            if d.outside
+            else ""
+        )
+        + ". The share of rows in each region of that graph, then and now, is tested with "
+        "the chi-square test of the two shares, adjusted by Benjamini–Hochberg across the "
+        f"regions: {plural(len(shifted), 'region')} of {len(d.regions)} shifted "
+        f"(adjusted p-value at most {SHIFT_LEVEL}), and {plural(len(nodes), 'node')} of "
+        f"{len(d.nodes)}. A shift says where the population moved, not how the model does "
+        "there.",
+        "",
+        f"| region of release {prev}'s graph | rows then | share then | rows now | "
+        "share now | change (points) | adjusted p-value |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for s in d.regions:
+        small = (is_small(s.rows_before) and s.rows_before) or (
+            is_small(s.rows_after) and s.rows_after
+        )
+        change = "not shown" if small else f"{(s.share_after - s.share_before) * 100:+.1f}"
+        lines.append(
+            f"| region {s.part} | {count(s.rows_before)} | {_share(s.rows_before, s.share_before)} "
+            f"| {count(s.rows_after)} | {_share(s.rows_after, s.share_after)} | {change} | "
+            f"{'not shown' if small else pvalue(s.p_adjusted)} |"
+        )
+    return [*lines, ""]
