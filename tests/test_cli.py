@@ -23,8 +23,10 @@ def test_check_unknown_case_is_a_clear_error(capsys):
 def test_demo_audits_two_releases_publishes_them_and_builds_the_site(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path), "--rows", "1500", "--quiet"]) == 0
     out = capsys.readouterr().out.splitlines()
-    assert out[-3].startswith("meter-failure 2026.1: 1,500 rows, error rate ")
-    assert out[-2].startswith("meter-failure 2026.2: 1,500 rows, error rate ")
+    assert out[-4].startswith("meter-failure 2026.1: 1,500 rows, error rate ")
+    assert out[-3].startswith("meter-failure 2026.2: 1,500 rows, error rate ")
+    assert out[-2].startswith("gate: release 2026.2 ")
+    assert (tmp_path / "gate-2026.2.md").read_text().startswith("## Release gate")
     home = tmp_path / "site" / "index.html"
     assert out[-1] == f"home page: {home.resolve()}"
     assert (

@@ -239,6 +239,15 @@ def _demo(args: argparse.Namespace) -> int:
     print()
     for line in summaries:
         print(line)
+    if n > 1:
+        from topoaudit.report.gate import run_gate
+
+        last = config.releases[-1].name
+        code, text = run_gate(out / "bundles" / last, archive=archive)
+        (out / f"gate-{last}.md").write_text(text, encoding="utf-8")  # for a pull request
+        verdict = {0: "passes", 1: "fails"}.get(code, "cannot decide")
+        where = out / f"gate-{last}.md"
+        print(f"gate: release {last} {verdict} under the demo's [gate] policy ({where})")
     print(f"home page: {(site / 'index.html').resolve()}")
     return 0
 

@@ -69,6 +69,10 @@ filter = "pca"           # intervals, overlap and clustering scale: chosen from 
 
 [audit]
 segments = ["district", "material"]   # a table per column on the page
+
+[gate]                                 # topoaudit gate fails a release when...
+fail_on = ["introduced", "returned", "worse", "metric"]
+metric_tolerance = 0.01
 """
 
 
