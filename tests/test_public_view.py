@@ -59,6 +59,9 @@ def _plant(a: dict, g: dict, rows: int) -> None:
     feature["columns"] = [{"column": "pressure_bar", "smd": MARK, "direction": "higher"}]
     node = g["nodes"][0]
     node.update(rows=rows, loss=MARK, mean_score=MARK, expected_loss=MARK)
+    level = a["segments"][0]["levels"][0]
+    level.update(rows=rows, loss=MARK, rest_loss=MARK)
+    level["metrics"]["error_rate"]["value"] = MARK
 
 
 def _leaks(text: str) -> list[str]:
