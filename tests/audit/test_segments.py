@@ -321,3 +321,34 @@ def test_the_demo_declares_its_districts_and_materials_and_counts_them_as_pandas
                 assert lv["loss"] == pytest.approx(grouped.loc[lv["level"], "mean"], abs=1e-6)
         page = (bundles[release] / "page.md").read_text(encoding="utf-8")
         assert "## Declared segments" in page and "### district" in page
+
+
+def test_a_regression_audit_tables_its_segments_in_regression_terms(tmp_path):
+    # the whole audit on the regression rows: the page's table leads with the mean absolute
+    # error and its bootstrap interval, then the mean squared error that is tested
+    from topoaudit.audit.run import run_audit
+
+    frame = _frame("regression", n=600, seed=5)
+    frame.to_csv(tmp_path / "rows.csv", index=False)
+    doc = _doc("regression", ["zone"])
+    doc["data"]["path"] = str(tmp_path / "rows.csv")
+    doc["graph"] = {"resamples": 0}
+    doc["audit"].update(stability_intervals=[0], stability_overlaps=[0.0], bootstrap_resamples=0)
+    audit = run_audit(parse_config(doc))
+    (segment,) = audit.analysis.segments
+    rows = _labelled(frame)
+    squared = (rows["y"] - rows["s"]) ** 2
+    page = build_page(audit.analysis, audit.graph).markdown
+    table = page.split("### zone")[1].split("\n\n")[1].splitlines()
+    assert table[0] == (
+        "| value | rows | mean absolute error | 95% interval | mean squared error | mean squared "
+        "error of the other rows | adjusted p-value | verdict |"
+    )
+    east = next(lv for lv in segment.levels if lv.level == "east")
+    inside = (rows["zone"] == "east").to_numpy()
+    assert table[2].startswith(
+        f"| east | {inside.sum()} | {np.abs(rows['y'] - rows['s'])[inside].mean():.3f} | "
+        f"{east.metrics['mae'].low:.3f} to {east.metrics['mae'].high:.3f} | "
+        f"{squared[inside].mean():.3f} | {squared[~inside].mean():.3f} | "  # pandas
+    )
+    assert "Welch's t test (two-sided) of the squared errors" in " ".join(page.split())
