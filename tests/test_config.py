@@ -232,7 +232,7 @@ def test_an_unknown_top_level_key_is_named_with_a_suggestion(tmp_path: Path) -> 
         match=message(
             str(path),
             ": unknown key 'modle'; the known keys here are 'model', 'seed', 'data', 'release', "
-            "'graph', 'audit'.",
+            "'graph', 'audit', 'gate'.",
             " Did you mean 'model'?",
         ),
     ):

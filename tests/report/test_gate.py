@@ -56,7 +56,9 @@ def test_the_demo_gate_fails_on_the_region_2026_2_introduced(fixture_archive):
 
 
 def _config_with_gate(folder, tmp_path, gate: str):
+    """The fixture's config with its [gate] table's keys replaced by ``gate``."""
     text = (folder / "project" / "audit.toml").read_text(encoding="utf-8")
+    text = text[: text.index("\n[gate]")] if "\n[gate]" in text else text
     path = tmp_path / "audit.toml"
     path.write_text(text + "\n[gate]\n" + gate, encoding="utf-8")
     return path

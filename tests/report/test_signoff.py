@@ -29,7 +29,7 @@ from topoaudit.report.archive import (
     signoffs,
     verify_archive,
 )
-from topoaudit.report.site import _history_page, build_site
+from topoaudit.report.site import _release_table, build_site
 
 MODEL = "meter-failure"
 EPOCH = "1767225600"  # 2026-01-01T00:00:00Z
@@ -178,7 +178,7 @@ def test_replace_moves_the_sign_offs_with_the_old_bundle_into_history(archive, f
     assert not (folder / "signoffs").exists() and signoffs(folder) == []
     v = verify_archive(archive)
     assert v.ok and v.signoffs == 1, v.report()
-    page = _history_page(MODEL, list_releases(archive, MODEL))
+    page = _history_table(archive)
     assert "rejected" not in page and page.count("not signed off") == 2
 
 
@@ -388,9 +388,14 @@ def test_a_linked_release_folder_is_refused(archive, tmp_path):
 # -- pages ----------------------------------------------------------------------------------
 
 
+def _history_table(archive) -> str:
+    """The release table of the model's history page."""
+    return "\n".join(_release_table(list_releases(archive, MODEL)))
+
+
 def test_the_history_page_shows_each_release_s_latest_decision(archive):
     _signed_twice(archive)
-    page = _history_page(MODEL, list_releases(archive, MODEL))
+    page = _history_table(archive)
     assert "| sign-off |" in page
     row_2, row_1 = (line for line in page.splitlines() if line.startswith("| [2026"))
     assert "| approved with conditions by B. Reviewer, 2026\\-01\\-01 |" in row_2
@@ -400,7 +405,7 @@ def test_the_history_page_shows_each_release_s_latest_decision(archive):
 
 def test_the_history_page_escapes_the_reviewer(archive):
     _sign(archive / MODEL / "2026.2", reviewer="<img src=x>|[a](b)")
-    page = _history_page(MODEL, list_releases(archive, MODEL))
+    page = _history_table(archive)
     assert "<img" not in page and "[a](b)" not in page
     assert "&lt;img src=x&gt;\\|\\[a\\]\\(b\\)" in page
 

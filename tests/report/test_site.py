@@ -107,8 +107,10 @@ def test_diff_prints_deterministic_markdown(fixture_archive, capsys):
     assert main(args) == 0
     assert capsys.readouterr().out == first
     assert first.startswith("## meter\\-failure: release 2026.2 against 2026.1")
-    assert "Weak regions gained:" in first and "Weak regions lost:" in first
-    assert "| error rate |" in first
+    # the regions followed by tracked id, each with what became of it
+    assert "## Weak regions of release 2026.1 under 2026.2" in first
+    assert "## Weak regions of release 2026.2" in first and "| T1 (W1) |" in first
+    assert "| error rate |" in first and "## Cautions" in first
 
 
 def test_cli_site_build_and_publish_refusal(fixture_archive, tmp_path, capsys):
