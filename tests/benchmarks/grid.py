@@ -1,0 +1,211 @@
+"""Discovery power on a wide grid of planted pockets, beside two usual baselines.
+
+Run ``python -m tests.benchmarks.grid`` from the repository root (part of ``make bench``;
+``--quick`` runs one setting of each family and null). Each setting
+(:mod:`tests.benchmarks.grid_sim`) is drawn, then on the same rows:
+
+* **topoaudit**: the search and confirmation of the audit (search graphs on the discovery
+  half, the exact confirmation test on the other half, Benjamini–Hochberg at 0.05 over
+  every candidate; :func:`topoaudit.audit.weak.find_weak_regions`), as the acceptance
+  simulations of the test suite run it;
+* **tree**: a depth-3 decision tree fitted to the error indicator on the discovery half,
+  leaves of at least 2% of the rows; its worst leaf (highest error rate) is the finding;
+* **bin**: the worst single-feature bin (deciles of each feature on the discovery half,
+  highest error rate).
+
+The baselines' findings are confirmed by a one-sided exact binomial test on the
+confirmation half (their error count against the half's error rate, at 0.05).
+
+Measures, as the planted-slice evaluation of Eyuboglu et al. (Domino, ICLR 2022) reports
+them: **recall** (a pocket is recovered when a confirmed region has Jaccard index at least
+0.5 with it), **precision** (the share of confirmed regions with at least half of their
+rows in a pocket), the **false-finding rate** of the null settings (a setting with any
+confirmed region) and the run time. Results go to ``grid_results.jsonl`` (one line per
+setting, so a run can be resumed with ``--resume``), ``GRID_RESULTS.md`` and two charts.
+Nothing here asserts anything: the figures are reported as measured.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from tests.benchmarks.grid_sim import FAMILIES, plant
+
+HERE = Path(__file__).resolve().parent
+RESULTS = HERE / "grid_results.jsonl"
+REPORT = HERE / "GRID_RESULTS.md"
+SIZES = (0.01, 0.03, 0.10)
+STRENGTHS = (2.0, 4.0, 6.0)
+#: (rows, features) of the two replicates of each pocket size: at least 250 pocket rows
+SCALES = {
+    0.10: ((5_000, 6), (20_000, 12)),
+    0.03: ((20_000, 12), (50_000, 25)),
+    0.01: ((50_000, 25), (100_000, 50)),
+}
+#: the largest data sets: the 1% pockets at strength 6, second replicate
+LARGEST = (200_000, 50)
+
+
+def settings(quick: bool = False) -> list[dict[str, Any]]:
+    """Every setting of the grid, in a fixed order."""
+    out = []
+    for family in FAMILIES:
+        for size in SIZES:
+            for strength in STRENGTHS:
+                for rep, (rows, feats) in enumerate(SCALES[size]):
+                    if size == 0.01 and strength == 6.0 and rep == 1:
+                        rows, feats = LARGEST
+                    out.append(dict(family=family, size=size, strength=strength, rows=rows,
+                                    features=feats, seed=rep))  # fmt: skip
+    for seed in range(26):  # calibrated releases: no pocket at all
+        rows, feats = ((5_000, 6), (20_000, 12), (5_000, 50), (50_000, 25))[seed % 4]
+        if rows == 50_000 and seed > 8:
+            rows, feats = 20_000, 25
+        out.append(dict(family="calibrated", size=0.0, strength=1.0, rows=rows,
+                        features=feats, seed=seed))  # fmt: skip
+    for seed in range(14):  # errors inflated alike everywhere
+        rows, feats = ((5_000, 6), (20_000, 12))[seed % 2]
+        out.append(dict(family="inflated", size=0.0, strength=STRENGTHS[seed % 3], rows=rows,
+                        features=feats, seed=seed))  # fmt: skip
+    if quick:
+        seen, keep = set(), []
+        for s in out:
+            if s["family"] not in seen:
+                seen.add(s["family"])
+                keep.append({**s, "rows": min(s["rows"], 5_000), "size": s["size"] and 0.1})
+        return keep
+    return out
+
+
+def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
+    union = int((a | b).sum())
+    return int((a & b).sum()) / union if union else 0.0
+
+
+def _confirmed_by_half(mask, error, discovery) -> bool:
+    from topoaudit.audit.stats import binomial_upper_test
+
+    conf = ~discovery
+    n, k = int((mask & conf).sum()), int(error[mask & conf].sum())
+    rate = float(error[conf].mean())
+    return n > 0 and binomial_upper_test(k, n, rate) <= 0.05
+
+
+def _tree(X, error, discovery) -> np.ndarray:
+    from sklearn.tree import DecisionTreeClassifier
+
+    leaf_rows = max(2, int(np.ceil(0.02 * X.shape[0])))
+    tree = DecisionTreeClassifier(max_depth=3, min_samples_leaf=leaf_rows // 2, random_state=0)
+    tree.fit(X[discovery], error[discovery])
+    leaves = tree.apply(X)
+    rates = {
+        leaf: error[discovery & (leaves == leaf)].mean()
+        for leaf in np.unique(leaves[discovery])
+        if (leaves == leaf).sum() >= leaf_rows
+    }
+    worst = max(rates, key=rates.get) if rates else leaves[0]
+    return leaves == worst
+
+
+def _worst_bin(X, error, discovery) -> np.ndarray:
+    best, best_rate = np.zeros(X.shape[0], bool), -1.0
+    for j in range(X.shape[1]):
+        edges = np.unique(np.quantile(X[discovery, j], np.linspace(0, 1, 11)))
+        bins = np.clip(np.searchsorted(edges, X[:, j], side="right") - 1, 0, max(0, edges.size - 2))
+        for b in np.unique(bins):
+            mask = bins == b
+            if mask.sum() < 0.02 * X.shape[0]:
+                continue
+            rate = float(error[discovery & mask].mean())
+            if rate > best_rate:
+                best, best_rate = mask, rate
+    return best
+
+
+def _ours(X, sim, discovery, seed) -> list[np.ndarray]:
+    from topoaudit.audit.search import SearchSettings, search_graphs
+    from topoaudit.audit.weak import binary_losses, find_weak_regions, merge_confirmed
+
+    losses = binary_losses(sim.y, sim.score, sim.threshold)
+    graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=seed)
+    found = merge_confirmed(find_weak_regions(graphs, losses, discovery, random_state=seed))
+    masks = []
+    for f in found:
+        m = np.zeros(X.shape[0], bool)
+        m[f.rows] = True
+        masks.append(m)
+    return masks
+
+
+def _scores(found: list[np.ndarray], pockets) -> dict[str, Any]:
+    recovered = [any(_jaccard(f, p) >= 0.5 for f in found) for p in pockets]
+    inside = np.logical_or.reduce(pockets) if pockets else None
+    precise = [inside is not None and bool(inside[f].mean() >= 0.5) for f in found]
+    best = [max((_jaccard(f, p) for f in found), default=0.0) for p in pockets]
+    return dict(found=len(found), recovered=recovered, precise=precise, best_jaccard=best)
+
+
+def run_setting(s: dict[str, Any]) -> dict[str, Any]:
+    """One setting: draw it, run the three methods on the same rows, score them."""
+    from topoaudit.audit.weak import split_halves
+
+    sim = plant(s["family"], s["rows"], s["features"], s["size"], s["strength"], s["seed"])
+    sd = sim.X.std(axis=0)
+    X = (sim.X - sim.X.mean(axis=0)) / np.where(sd > 0, sd, 1.0)
+    error = ((sim.score >= sim.threshold) != (sim.y == 1)).astype(float)
+    discovery = split_halves(sim.y.size, sim.y, s["seed"])
+    out = dict(s)
+    t0 = time.perf_counter()
+    out["ours"] = _scores(_ours(X, sim, discovery, s["seed"]), sim.pockets)
+    out["seconds"] = time.perf_counter() - t0
+    for name, method in (("tree", _tree), ("bin", _worst_bin)):
+        t0 = time.perf_counter()
+        mask = method(X, error, discovery)
+        confirmed = [mask] if _confirmed_by_half(mask, error, discovery) else []
+        out[name] = _scores(confirmed, sim.pockets) | {"seconds": time.perf_counter() - t0}
+    return out
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="one small setting per family")
+    parser.add_argument("--resume", action="store_true", help="keep the settings done")
+    parser.add_argument("--jobs", type=int, default=2, help="settings run at once (2)")
+    args = parser.parse_args(argv)
+    from joblib import Parallel, delayed
+
+    from tests.benchmarks.grid_report import write_report
+
+    todo = settings(args.quick)
+    results_path = RESULTS.with_suffix(".quick.jsonl") if args.quick else RESULTS
+    done = []
+    if args.resume and results_path.exists():
+        done = [json.loads(line) for line in results_path.read_text().splitlines() if line]
+    key = lambda s: (s["family"], s["size"], s["strength"], s["rows"], s["features"], s["seed"])  # noqa: E731
+    have = {key(r) for r in done}
+    todo = [s for s in todo if key(s) not in have]
+    start = time.perf_counter()
+    mode = "a" if args.resume else "w"
+    with results_path.open(mode, encoding="utf-8") as fh:
+        jobs = Parallel(n_jobs=args.jobs, return_as="generator_unordered", batch_size=1)
+        for k, r in enumerate(jobs(delayed(run_setting)(s) for s in todo), start=1):
+            fh.write(json.dumps(r) + "\n")
+            fh.flush()
+            print(f"{k}/{len(todo)} {r['family']} {r['rows']}x{r['features']} size "
+                  f"{r['size']} x{r['strength']}: recovered {r['ours']['recovered']} "
+                  f"({r['seconds']:.0f} s)", flush=True)  # fmt: skip
+    wall = time.perf_counter() - start
+    results = [json.loads(line) for line in results_path.read_text().splitlines() if line]
+    if not args.quick:
+        write_report(results, REPORT, HERE, wall_seconds=wall, jobs=args.jobs)
+    print(f"{len(results)} settings; {wall / 60:.1f} min of wall time this run")
+
+
+if __name__ == "__main__":
+    main()

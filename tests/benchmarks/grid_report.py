@@ -1,0 +1,114 @@
+"""The report of the discovery-power grid: tables per family, size and strength, the null
+settings, and two charts of recall (Altair, written as SVG)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+METHODS = ("ours", "tree", "bin")
+NAMES = {"ours": "topoaudit", "tree": "depth-3 tree", "bin": "worst bin"}
+
+
+def _pockets(results: list[dict[str, Any]]) -> pd.DataFrame:
+    """One row per planted pocket and method: recovered or not."""
+    rows = []
+    for r in results:
+        if r["size"] == 0.0:
+            continue
+        for m in METHODS:
+            for k, ok in enumerate(r[m]["recovered"]):
+                rows.append(dict(family=r["family"], size=r["size"], strength=r["strength"],
+                                 rows=r["rows"], features=r["features"], method=m, pocket=k,
+                                 recovered=bool(ok)))  # fmt: skip
+    return pd.DataFrame(rows)
+
+
+def _table(frame: pd.DataFrame, by: str, title: str) -> list[str]:
+    wide = frame.pivot_table(index=by, columns="method", values="recovered", aggfunc="mean")
+    counts = frame[frame.method == "ours"].groupby(by).size()
+    lines = [f"### Recall by {title}", "", f"| {title} | pockets | " + " | ".join(
+        NAMES[m] for m in METHODS) + " |", "|---|---|" + "---|" * len(METHODS)]  # fmt: skip
+    for key in wide.index:
+        cells = " | ".join(f"{wide.loc[key, m]:.2f}" for m in METHODS)
+        label = f"{key:.0%}" if by == "size" else (f"{key:g}x" if by == "strength" else key)
+        lines.append(f"| {label} | {counts[key]} | {cells} |")
+    return [*lines, ""]
+
+
+def _nulls(results: list[dict[str, Any]]) -> list[str]:
+    nulls = [r for r in results if r["size"] == 0.0]
+    header = " | ".join(f"{NAMES[m]}: with a finding" for m in METHODS)
+    lines = ["### Null settings (no pocket)", "", f"| null | settings | {header} |",
+             "|---|---|" + "---|" * len(METHODS)]  # fmt: skip
+    for kind in ("calibrated", "inflated"):
+        some = [r for r in nulls if r["family"] == kind]
+        if some:
+            cells = " | ".join(f"{sum(r[m]['found'] > 0 for r in some)}" for m in METHODS)
+            lines.append(f"| {kind} | {len(some)} | {cells} |")
+    total = len(nulls)
+    rate = sum(r["ours"]["found"] > 0 for r in nulls) / total if total else float("nan")
+    return [*lines, "", f"False-finding rate of topoaudit over the {total} null settings: "
+            f"{rate:.3f}.", ""]  # fmt: skip
+
+
+def _charts(frame: pd.DataFrame, folder: Path) -> list[str]:
+    import altair as alt
+    import vl_convert as vlc
+
+    out = []
+    for by, title in (
+        ("size", "pocket size (share of rows)"),
+        ("strength", "error inside / outside"),
+    ):
+        data = frame.groupby([by, "method"], as_index=False)["recovered"].mean()
+        data["method"] = data["method"].map(NAMES)
+        chart = (
+            alt.Chart(data)
+            .mark_line(point=True)
+            .encode(
+                x=alt.X(f"{by}:Q", title=title),
+                y=alt.Y("recovered:Q", title="recall", scale=alt.Scale(domain=[0, 1])),
+                color=alt.Color("method:N", title="method"),
+            )
+            .properties(width=420, height=220, title=f"Recall against {title}")
+        )
+        name = f"grid_recall_{by}.svg"
+        (folder / name).write_text(vlc.vegalite_to_svg(chart.to_dict()), encoding="utf-8")
+        out.append(f"![Recall against {title}]({name})")
+    return [*out, ""]
+
+
+def write_report(
+    results: list[dict[str, Any]], path: Path, folder: Path, *, wall_seconds: float, jobs: int
+) -> None:
+    frame = _pockets(results)
+    planted = [r for r in results if r["size"] > 0]
+    precise = [p for r in planted for p in r["ours"]["precise"]]
+    seconds = pd.Series([r["seconds"] for r in results])
+    overall = frame.groupby("method")["recovered"].mean()
+    lines = [
+        "# Discovery power on a grid of planted pockets",
+        "",
+        f"{len(planted)} settings with pockets ({len(frame[frame.method == 'ours'])} pockets) "
+        f"and {len(results) - len(planted)} null settings; measured by `python -m "
+        "tests.benchmarks.grid` (see its docstring for the methods and measures).",
+        "",
+        "Recall over all pockets: "
+        + ", ".join(f"{NAMES[m]} {overall[m]:.2f}" for m in METHODS)
+        + ". "
+        f"Precision of topoaudit: {sum(precise) / len(precise):.2f} of {len(precise)} "
+        "confirmed regions have at least half of their rows in a pocket. "
+        f"topoaudit's search and confirmation took {seconds.median():.1f} s per setting "
+        f"(median; {seconds.max():.0f} s at most), {seconds.sum() / 60:.0f} min in all; the "
+        f"grid's wall time was {wall_seconds / 60:.0f} min with {jobs} settings at once.",
+        "",
+        *_table(frame, "family", "family"),
+        *_table(frame, "size", "size"),
+        *_table(frame, "strength", "strength"),
+        *_nulls(results),
+        *_charts(frame, folder),
+    ]
+    path.write_text("\n".join(lines), encoding="utf-8")
