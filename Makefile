@@ -39,6 +39,7 @@ bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.shape
 	$(BIN)/python -m tests.benchmarks.audit
 	$(BIN)/python -m tests.benchmarks.site
+	$(BIN)/python -m tests.benchmarks.grid
 
 # Rewrites the visual suite's spec snapshots, chart images and page screenshots; review
 # the changed files under tests/visual/baselines before committing them.
