@@ -17,7 +17,8 @@ import pytest
 from tests.conftest import LIGHT_AUDIT, light
 from topoaudit.cli import main
 from topoaudit.demo import write_demo_project
-from topoaudit.report.page import build_page, stable_svg_ids
+from topoaudit.report.figures import stable_svg_ids
+from topoaudit.report.page import build_page
 from topoaudit.report.text import escape
 
 FIXTURE = Path(__file__).parents[1] / "visual" / "fixture"

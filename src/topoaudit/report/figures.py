@@ -22,7 +22,7 @@ from pathlib import Path
 from topoaudit.errors import BundleError
 from topoaudit.report.text import html_text, script_json
 
-__all__ = ["chart_block", "inline_specs", "spec_file"]
+__all__ = ["chart_block", "inline_specs", "spec_file", "stable_svg_ids", "write_charts"]
 
 _NAME = re.compile(r"[A-Za-z0-9_]+")
 _BLOCK = re.compile(
@@ -87,3 +87,33 @@ def inline_specs(markdown: str, charts: Path) -> str:
         return f"{m.group(1)}{script}\n"
 
     return _BLOCK.sub(inlined, markdown)
+
+
+_SVG_ID = re.compile(r'id="([A-Za-z_][\w.-]*?)_(\d+)"')
+
+
+def stable_svg_ids(svg: str, name: str) -> str:
+    """``svg`` with the ids the converter numbers per process (``gradient_3``) renamed by
+    the chart's name and their order in the file (``graph-gradient-0``), so that the same
+    chart gives the same file whatever was drawn before it in the process."""
+    ids: dict[str, str] = {}
+    for m in _SVG_ID.finditer(svg):
+        old = f"{m.group(1)}_{m.group(2)}"
+        ids.setdefault(old, f"{name}-{m.group(1)}-{len(ids)}")
+    for old, new in ids.items():
+        svg = re.sub(rf'(?<=["#(]){re.escape(old)}(?=[")])', new, svg)
+    return svg
+
+
+def write_charts(folder: Path, specs: dict) -> None:
+    """Write each chart's spec (``<name>.vl.json``) and its SVG into ``folder`` (created
+    if needed), the SVG's ids made stable (:func:`stable_svg_ids`)."""
+    import vl_convert as vlc
+
+    from topoaudit.bundle.files import canonical_json
+
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, spec in specs.items():
+        (folder / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
+        svg = stable_svg_ids(vlc.vegalite_to_svg(spec), name)
+        (folder / f"{name}.svg").write_text(svg, encoding="utf-8")

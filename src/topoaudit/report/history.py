@@ -22,7 +22,7 @@ from topoaudit.report.figures import chart_block
 from topoaudit.report.text import escape
 from topoaudit.wording import join_words
 
-__all__ = ["history_charts", "history_page", "write_charts"]
+__all__ = ["history_charts", "history_page"]
 
 ORIGIN_STATUS = {
     "found again": "found again",
@@ -164,17 +164,3 @@ def history_page(model: str, table: list[str], lineage: Lineage | None, charts: 
         ]
     )
     return "\n".join(lines + caution_lines("##", review=True))
-
-
-def write_charts(folder, charts: dict[str, tuple[str, dict]]) -> None:
-    """Write each chart's spec (``<name>.vl.json``) and SVG into ``folder``."""
-    import vl_convert as vlc
-
-    from topoaudit.bundle.files import canonical_json
-    from topoaudit.report.page import stable_svg_ids
-
-    folder.mkdir(parents=True, exist_ok=True)
-    for name, (_alt, spec) in charts.items():
-        (folder / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
-        svg = stable_svg_ids(vlc.vegalite_to_svg(spec), name)
-        (folder / f"{name}.svg").write_text(svg, encoding="utf-8")

@@ -47,7 +47,7 @@ import pandas as pd
 from topoaudit import limits
 from topoaudit.audit.tasks import Task, task_named
 from topoaudit.bundle import MIN_CELL_ROWS, public_graph, public_view
-from topoaudit.bundle.files import canonical_json, read_analysis, read_graph
+from topoaudit.bundle.files import read_analysis, read_graph
 from topoaudit.bundle.records import (
     Analysis,
     Comparison,
@@ -65,7 +65,7 @@ from topoaudit.bundle.records import (
 )
 from topoaudit.report import views
 from topoaudit.report.cautions import STANDING_CAUTIONS
-from topoaudit.report.figures import chart_block
+from topoaudit.report.figures import chart_block, write_charts
 from topoaudit.report.review import (
     candidates_section,
     drift_section,
@@ -1108,33 +1108,10 @@ def _reproduce_section(a: Analysis) -> list[str]:
     ]
 
 
-_SVG_ID = re.compile(r'id="([A-Za-z_][\w.-]*?)_(\d+)"')
-
-
-def stable_svg_ids(svg: str, name: str) -> str:
-    """``svg`` with the ids the converter numbers per process (``gradient_3``) renamed by
-    the chart's name and their order in the file (``graph-gradient-0``), so that the same
-    chart gives the same file whatever was drawn before it in the process."""
-    ids: dict[str, str] = {}
-    for m in _SVG_ID.finditer(svg):
-        old = f"{m.group(1)}_{m.group(2)}"
-        ids.setdefault(old, f"{name}-{m.group(1)}-{len(ids)}")
-    for old, new in ids.items():
-        svg = re.sub(rf'(?<=["#(]){re.escape(old)}(?=[")])', new, svg)
-    return svg
-
-
 def render_bundle(folder: str | Path) -> Page:
     """Write ``page.md``, ``charts/*.vl.json`` and ``charts/*.svg`` into a bundle folder."""
-    import vl_convert as vlc
-
     folder = Path(folder)
     page = build_page(read_analysis(folder), read_graph(folder))
-    charts = folder / "charts"
-    charts.mkdir(exist_ok=True)
-    for name, spec in page.charts.items():
-        (charts / f"{name}.vl.json").write_text(canonical_json(spec), encoding="utf-8")
-        svg = stable_svg_ids(vlc.vegalite_to_svg(spec), name)
-        (charts / f"{name}.svg").write_text(svg, encoding="utf-8")
+    write_charts(folder / "charts", page.charts)
     (folder / "page.md").write_text(page.markdown, encoding="utf-8")
     return page

@@ -37,9 +37,9 @@ from topoaudit.report.archive import (
     staging,
 )
 from topoaudit.report.diff import diff_markdown
-from topoaudit.report.figures import inline_specs
+from topoaudit.report.figures import inline_specs, write_charts
 from topoaudit.report.gate import review_sections
-from topoaudit.report.history import history_charts, history_page, write_charts
+from topoaudit.report.history import history_charts, history_page
 from topoaudit.report.text import count, escape, rate
 
 __all__ = ["SITE_MARKER", "ArchiveError", "build_site", "list_releases", "publish", "signoff_words"]
@@ -167,7 +167,7 @@ def _follow(rels: list[PublishedRelease]) -> tuple[Lineage | None, dict[str, Rel
 
 def _history(docs: Path, model: str, rels: list[PublishedRelease], lineage) -> None:
     charts = history_charts(lineage, [r.analysis for r in reversed(rels)])
-    write_charts(docs / model / "charts", charts)
+    write_charts(docs / model / "charts", {name: spec for name, (_alt, spec) in charts.items()})
     text = history_page(model, _release_table(rels), lineage, charts)
     _write(docs / model / "index.md", inline_specs(text, docs / model / "charts"))
 
