@@ -9,6 +9,7 @@ parameter, what is allowed and the value received.
 from __future__ import annotations
 
 import numbers
+import re
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -19,10 +20,12 @@ from topoaudit.errors import ParameterError
 
 __all__ = [
     "NONE",
+    "SCHEDULER_ADDRESS",
     "Choice",
     "Interval",
     "Kind",
     "check_params",
+    "is_scheduler_address",
     "random_generator",
 ]
 
@@ -99,6 +102,26 @@ class Kind:
 
 
 NONE = Kind(lambda v: v is None, "None")
+
+#: a Dask scheduler's address: tcp:// or tls://, a host name, IPv4 or [IPv6], and a port
+_ADDRESS = re.compile(r"(tcp|tls)://(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9][A-Za-z0-9._-]*):([0-9]{1,5})")
+
+
+def is_scheduler_address(value: Any) -> bool:
+    """Whether ``value`` is a scheduler address ``tcp://HOST:PORT`` (or ``tls://``) with
+    a port from 1 to 65535.
+
+    >>> is_scheduler_address("tcp://10.0.0.5:8786"), is_scheduler_address("10.0.0.5:8786")
+    (True, False)
+    """
+    match = _ADDRESS.fullmatch(value) if isinstance(value, str) else None
+    return match is not None and 1 <= int(match.group(3)) <= 65535
+
+
+SCHEDULER_ADDRESS = Kind(
+    is_scheduler_address,
+    "a Dask scheduler address tcp://HOST:PORT (or tls://HOST:PORT), as `dask scheduler` prints it",
+)
 
 
 def check_params(owner: str, table: Mapping[str, list[Any]], params: Mapping[str, Any]) -> None:

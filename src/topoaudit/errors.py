@@ -15,6 +15,7 @@ from collections.abc import Iterable
 __all__ = [
     "ArchiveError",
     "BundleError",
+    "ClusterError",
     "ConfigError",
     "DataError",
     "FilterError",
@@ -62,6 +63,11 @@ class LimitParameterError(LimitError, ParameterError):
 
 class ArchiveError(TopoauditError, OSError):
     """The archive refused an operation (a name, an existing release, a broken bundle)."""
+
+
+class ClusterError(TopoauditError, OSError):
+    """A compute cluster cannot be reached, or lost every worker or its scheduler while
+    tasks ran (the message names the scheduler's address)."""
 
 
 class BundleError(TopoauditError, ValueError):

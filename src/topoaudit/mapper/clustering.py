@@ -28,6 +28,7 @@ from scipy.spatial.distance import pdist
 from sklearn.base import clone
 from sklearn.cluster import DBSCAN, HDBSCAN
 from sklearn.metrics import silhouette_score
+from threadpoolctl import threadpool_limits
 
 from topoaudit._validation import NONE, Choice, Interval, check_params
 from topoaudit.errors import ParameterError, unknown_name
@@ -428,7 +429,13 @@ class KMeansMesh(Clusterer):
     clusterer with a fixed node size instead cuts every element into a mesh of small,
     compact nodes that a region search can assemble into a pocket of any shape.
     ``k = max(1, round(n / node_rows))``; scikit-learn's ``KMeans`` (Lloyd's algorithm,
-    k-means++ seeding, ``n_init`` restarts) with a fixed seed.
+    k-means++ seeding, ``n_init`` restarts) with a fixed seed, on one OpenMP thread: with
+    more, scikit-learn adds the threads' partial sums of each centre in the order the
+    threads finish, so the mesh could differ between two runs, and between a serial build
+    and one in worker processes or on a cluster.
+
+    Cost: each Lloyd iteration compares every row with every centre, ``n * k`` distances,
+    and ``k`` grows with ``n``, so the time grows as the square of the element's rows.
 
     Parameters
     ----------
@@ -462,7 +469,7 @@ class KMeansMesh(Clusterer):
         if k == 1:
             return np.zeros(X.shape[0], dtype=np.int64)
         model = KMeans(n_clusters=k, n_init=self.n_init, random_state=self.random_state)
-        with warnings.catch_warnings():
+        with threadpool_limits(limits=1, user_api="openmp"), warnings.catch_warnings():
             # fewer distinct rows than k: KMeans warns and returns fewer clusters, as it should
             warnings.filterwarnings("ignore", "Number of distinct clusters", ConvergenceWarning)
             return model.fit_predict(X)

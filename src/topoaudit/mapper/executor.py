@@ -1,17 +1,21 @@
-"""Where the clustering of cover elements runs.
+"""Where independent tasks run: the clustering of cover elements, resamples, reruns.
 
-Clustering one cover element is a pure function of (its rows' data, the clusterer's
-settings), so elements can run anywhere in any order. An executor is any object with
-``map(function, tasks) -> list`` that returns results in task order; serial and
-local-process executors are provided, and a distributed engine only needs the same
-method.
+Each task is a pure function of its arguments, so tasks can run anywhere in any order.
+An executor is any object with ``map(function, tasks) -> list`` that returns results in
+task order; serial and local-process executors are here, a Dask cluster's in
+:mod:`topoaudit.mapper.dask_executor`, and any other engine only needs the same method.
 
 Executors may also offer ``map_shared(function, shared, tasks, weights=None)``, which
 returns ``[function(shared, *task) for task in tasks]`` for one large array ``shared``
-common to every task (the data set, with tasks naming row positions). The local
-executors do: the serial one passes the array itself, the process executor writes it
-once to a memory-mapped file that every worker reads, so the data are neither copied per
-task nor sent through pipes.
+common to every task (the data set, with tasks naming row positions). All three do: the
+serial one passes the array itself, the process executor writes it once to a
+memory-mapped file that every worker reads, the Dask one sends it to each worker once,
+so the data are neither copied per task nor sent through pipes. :func:`map_shared`
+calls it, or ``map`` for an executor without it.
+
+The executors of this package also take ``progress``, called with the number of tasks
+finished as they finish, and say so with ``reports_progress = True``; :func:`map_tasks`
+and :func:`map_shared` pass it on to them only.
 """
 
 from __future__ import annotations
@@ -23,14 +27,22 @@ import numbers
 import os
 import tempfile
 import uuid
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from typing import Any, ClassVar, Protocol
 
 import numpy as np
 
 from topoaudit.errors import ParameterError
 
-__all__ = ["Executor", "ProcessExecutor", "SerialExecutor", "make_executor"]
+__all__ = [
+    "Executor",
+    "ProcessExecutor",
+    "SerialExecutor",
+    "make_executor",
+    "map_shared",
+    "map_tasks",
+    "open_executor",
+]
 
 _THREAD_VARIABLES = (
     "OMP_NUM_THREADS",
@@ -41,6 +53,9 @@ _THREAD_VARIABLES = (
     "NUMEXPR_NUM_THREADS",
 )
 _IDLE_TIMEOUT_S = 300
+
+#: called with the number of tasks finished so far
+Done = Callable[[int], None]
 
 # Per worker process: the thread limit already applied by threadpoolctl, and whether the
 # objects present after the first imports were frozen out of the garbage collector's view.
@@ -57,9 +72,22 @@ class Executor(Protocol):
 class SerialExecutor:
     """Run every task in this process, one after the other."""
 
-    def map(self, function: Callable[..., Any], tasks: Sequence[tuple[Any, ...]]) -> list[Any]:
+    reports_progress: ClassVar[bool] = True
+
+    def map(
+        self,
+        function: Callable[..., Any],
+        tasks: Sequence[tuple[Any, ...]],
+        weights: Sequence[float] | None = None,
+        progress: Done | None = None,
+    ) -> list[Any]:
         """Apply ``function(*task)`` to every task; results in task order."""
-        return [function(*task) for task in tasks]
+        out = []
+        for task in tasks:
+            out.append(function(*task))
+            if progress is not None:
+                progress(len(out))
+        return out
 
     def map_shared(
         self,
@@ -67,9 +95,10 @@ class SerialExecutor:
         shared: np.ndarray,
         tasks: Sequence[tuple[Any, ...]],
         weights: Sequence[float] | None = None,
+        progress: Done | None = None,
     ) -> list[Any]:
         """Apply ``function(shared, *task)`` to every task; results in task order."""
-        return [function(shared, *task) for task in tasks]
+        return self.map(function, [(shared, *task) for task in tasks], progress=progress)
 
     def __repr__(self) -> str:
         return "SerialExecutor()"
@@ -145,6 +174,7 @@ class ProcessExecutor:
     """
 
     _pool: ClassVar[Any] = None
+    reports_progress: ClassVar[bool] = True
 
     def __init__(self, n_jobs: int = 2) -> None:
         if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs < 1:
@@ -182,16 +212,25 @@ class ProcessExecutor:
         for _ in range(self.n_jobs):
             pool.submit(_preload, self.threads_per_worker, tuple(preload))
 
-    def _gather(self, calls: list[tuple[Any, ...]], weights: Sequence[float] | None) -> list[Any]:
+    def _gather(
+        self,
+        calls: list[tuple[Any, ...]],
+        weights: Sequence[float] | None,
+        progress: Done | None = None,
+    ) -> list[Any]:
+        from concurrent.futures import as_completed
+
         pool = self._executor()
         order = list(range(len(calls)))
         if weights is not None:
             order.sort(key=lambda i: -weights[i])
-        futures = [pool.submit(*calls[i]) for i in order]
+        futures = {pool.submit(*calls[i]): i for i in order}
         out: list[Any] = [None] * len(calls)
         try:
-            for i, future in zip(order, futures, strict=True):
-                out[i] = future.result()
+            for done, future in enumerate(as_completed(futures), start=1):
+                out[futures[future]] = future.result()
+                if progress is not None:
+                    progress(done)
         except BaseException:
             for future in futures:
                 future.cancel()
@@ -203,6 +242,7 @@ class ProcessExecutor:
         function: Callable[..., Any],
         tasks: Sequence[tuple[Any, ...]],
         weights: Sequence[float] | None = None,
+        progress: Done | None = None,
     ) -> list[Any]:
         """Apply ``function(*task)`` to every task in the workers; results in task order.
 
@@ -214,6 +254,8 @@ class ProcessExecutor:
             Arguments of each call.
         weights : sequence of float or None, default=None
             Expected cost of each task; the costliest are handed out first.
+        progress : callable or None, default=None
+            Called with the number of tasks finished, each time one finishes.
 
         Returns
         -------
@@ -221,7 +263,7 @@ class ProcessExecutor:
             One result per task, in task order.
         """
         n = self.threads_per_worker
-        return self._gather([(_run, n, function, *task) for task in tasks], weights)
+        return self._gather([(_run, n, function, *task) for task in tasks], weights, progress)
 
     def map_shared(
         self,
@@ -229,6 +271,7 @@ class ProcessExecutor:
         shared: np.ndarray,
         tasks: Sequence[tuple[Any, ...]],
         weights: Sequence[float] | None = None,
+        progress: Done | None = None,
     ) -> list[Any]:
         """Apply ``function(shared, *task)`` to every task in the workers.
 
@@ -247,6 +290,8 @@ class ProcessExecutor:
             The other arguments of each call.
         weights : sequence of float or None, default=None
             Expected cost of each task; the costliest are handed out first.
+        progress : callable or None, default=None
+            Called with the number of tasks finished, each time one finishes.
 
         Returns
         -------
@@ -262,9 +307,10 @@ class ProcessExecutor:
             try:
                 np.save(path, shared, allow_pickle=False)
             except OSError:  # no room or no writable folder: send the array with each task
-                return self._gather([(_run, n, function, shared, *task) for task in tasks], weights)
+                calls = [(_run, n, function, shared, *task) for task in tasks]
+                return self._gather(calls, weights, progress)
             calls = [(_run_shared, n, path, function, *task) for task in tasks]
-            return self._gather(calls, weights)
+            return self._gather(calls, weights, progress)
         finally:
             with contextlib.suppress(OSError):
                 os.remove(path)
@@ -281,16 +327,78 @@ class ProcessExecutor:
 
 
 def make_executor(spec: Any) -> Any:
-    """``None``, ``"serial"`` or ``1`` -> serial; an int ``n > 1`` -> ``n`` processes;
-    an object with ``map`` -> itself."""
+    """The executor that ``spec`` names.
+
+    ``None``, ``"serial"`` or ``1``: serial; an int ``n > 1``: ``n`` local processes; a
+    scheduler address ``"tcp://host:port"``: that Dask cluster
+    (:class:`~topoaudit.mapper.dask_executor.DaskExecutor`, connected at its first task);
+    an object with ``map``: itself.
+    """
     if spec is None or spec == "serial" or (isinstance(spec, numbers.Integral) and spec == 1):
         return SerialExecutor()
     if isinstance(spec, numbers.Integral) and not isinstance(spec, bool) and spec > 1:
         return ProcessExecutor(int(spec))
+    if isinstance(spec, str) and "://" in spec:
+        from topoaudit.mapper.dask_executor import DaskExecutor
+
+        return DaskExecutor(spec)
     if hasattr(spec, "map") and not isinstance(spec, str | numbers.Number):
         return spec
     msg = (
-        "n_jobs must be 1 or None (serial), an int > 1 (local processes) or an executor "
-        f"with a map(function, tasks) method; got {spec!r}."
+        "n_jobs must be 1 or None (serial), an int > 1 (local processes), a Dask scheduler "
+        f"address tcp://HOST:PORT or an executor with a map(function, tasks) method; got {spec!r}."
     )
     raise ParameterError(msg)
+
+
+@contextlib.contextmanager
+def open_executor(spec: Any) -> Iterator[Any]:
+    """:func:`make_executor` for a block: an executor made here from a scheduler address
+    is closed (its connection dropped) when the block ends; one given is left open."""
+    executor = make_executor(spec)
+    try:
+        yield executor
+    finally:
+        if executor is not spec and hasattr(executor, "close"):
+            executor.close()
+
+
+def map_tasks(
+    executor: Any,
+    function: Callable[..., Any],
+    tasks: Sequence[tuple[Any, ...]],
+    weights: Sequence[float] | None = None,
+    progress: Done | None = None,
+) -> list[Any]:
+    """``[function(*task) for task in tasks]`` on ``executor``, with ``progress`` called
+    with the number of tasks finished: as each finishes on the executors of this package,
+    at the end on others."""
+    if getattr(executor, "reports_progress", False):
+        return executor.map(function, tasks, weights=weights, progress=progress)
+    out = executor.map(function, tasks)
+    if progress is not None:
+        progress(len(out))
+    return out
+
+
+def map_shared(
+    executor: Any,
+    function: Callable[..., Any],
+    shared: np.ndarray,
+    tasks: Sequence[tuple[Any, ...]],
+    weights: Sequence[float] | None = None,
+    progress: Done | None = None,
+) -> list[Any]:
+    """``[function(shared, *task) for task in tasks]`` on ``executor``: through its
+    ``map_shared`` when it has one (the array travels once), else through its ``map``
+    with the array in every task. ``progress`` is called with the number of tasks
+    finished: as each finishes on the executors of this package, at the end on others."""
+    ours = getattr(executor, "reports_progress", False)
+    extra = {"progress": progress} if ours else {}
+    if hasattr(executor, "map_shared"):
+        out = executor.map_shared(function, shared, tasks, weights=weights, **extra)
+    else:
+        out = executor.map(function, [(shared, *task) for task in tasks], **extra)
+    if progress is not None and not ours:
+        progress(len(out))
+    return out

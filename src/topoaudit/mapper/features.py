@@ -456,14 +456,18 @@ def _resample_distance(
 ) -> tuple[float, ...]:
     """Rebuild the graph on ``size`` rows drawn without replacement; the bottleneck
     distance of each part of its diagram to ``reference``. A pure function of its
-    arguments (one task)."""
+    arguments (one task), on one native thread wherever it runs, so that its sums are
+    added in the same order serially, in a local process or on a cluster."""
+    from threadpoolctl import threadpool_limits
+
     from topoaudit.mapper.graph import MapperBuilder
 
     rng = np.random.default_rng(seed)
     rows = np.sort(rng.choice(shared.shape[0], size=size, replace=False))
     X = np.asarray(shared[rows, :n_features])
     values = np.asarray(shared[rows, n_features:])
-    builder = MapperBuilder(values, **settings).fit(X)
+    with threadpool_limits(limits=1):
+        builder = MapperBuilder(values, **settings).fit(X)
     parts = part_distances(reference, persistence_diagram(builder.graph_))
     return tuple(parts[p] for p in _DIAGRAM_PARTS)
 
@@ -522,7 +526,7 @@ def feature_confidence(
 
     from topoaudit.errors import ParameterError
     from topoaudit.mapper._input import as_matrix
-    from topoaudit.mapper.executor import make_executor
+    from topoaudit.mapper.executor import make_executor, map_shared
 
     X = as_matrix(X, min_rows=1)
     if builder.filter_values_.shape[1] != 1:
@@ -545,18 +549,13 @@ def feature_confidence(
     tasks = [(int(s), size, X.shape[1], settings, reference) for s in seeds]
     run = make_executor(executor)
     start = time.perf_counter()
-    distances: list[Any] = []
-    # in batches, so that a long run can say how far it is; the results do not depend on
-    # the batches (each resample has its own seed)
-    batch = max(1, -(-n_resamples // 10))
-    for first in range(0, n_resamples, batch):
-        part = tasks[first : first + batch]
-        if hasattr(run, "map_shared"):
-            distances += run.map_shared(_resample_distance, shared, part)
-        else:
-            distances += run.map(_resample_distance, [(shared, *t) for t in part])
-        if progress is not None:
-            progress(f"resample {len(distances)} of {n_resamples}")
+    tenth = max(1, -(-n_resamples // 10))
+
+    def done(k: int) -> None:  # says how far it is after each tenth of the resamples
+        if progress is not None and (k % tenth == 0 or k == n_resamples):
+            progress(f"resample {k} of {n_resamples}")
+
+    distances = map_shared(run, _resample_distance, shared, tasks, progress=done)
     seconds = (time.perf_counter() - start) / n_resamples
     per_part = np.asarray(distances, dtype=np.float64).reshape(n_resamples, len(_DIAGRAM_PARTS))
     column = {"component": 0, "loop": 1}
