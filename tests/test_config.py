@@ -13,6 +13,7 @@ import pytest
 
 from topoaudit.config import (
     AuditSettings,
+    ComputeSettings,
     Config,
     DataSettings,
     GraphSettings,
@@ -187,6 +188,51 @@ def test_to_dict_is_json_serialisable(tmp_path: Path) -> None:
     assert out["audit"]["stability_overlaps"] == [-0.1, 0.0, 0.1]
 
 
+def test_the_compute_section_is_read_and_left_out_of_the_record(tmp_path: Path) -> None:
+    text = MINIMAL + '\n[compute]\nscheduler = "tcp://10.0.0.5:8786"\nworkers = 3\n'
+    cfg = load_config(write(tmp_path, text))
+    assert cfg.compute == ComputeSettings(scheduler="tcp://10.0.0.5:8786", workers=3)
+    assert load_config(write(tmp_path, MINIMAL, "plain.toml")).compute == ComputeSettings(
+        scheduler=None, workers="auto"
+    )
+    # where an audit runs is no part of what it found: the bundle's copy has no [compute]
+    assert "compute" not in cfg.to_dict()
+    assert cfg.to_dict() == load_config(tmp_path / "plain.toml").to_dict()
+
+
+@pytest.mark.parametrize(
+    ("key", "value", "expected"),
+    [
+        ("scheduler", '"10.0.0.5:8786"', "a Dask scheduler address tcp://HOST:PORT"),
+        ("scheduler", '"tcp://10.0.0.5:99999"', "got 'tcp://10.0.0.5:99999'."),
+        ("scheduler", "8786", "got 8786."),
+        ("workers", "0", "'auto' or an int in the range [1, 256]; got 0."),
+        ("workers", '"all"', "one of 'auto' or an int in the range [1, 256]; got 'all'."),
+    ],
+)
+def test_bad_compute_values_name_the_key_and_what_is_accepted(
+    tmp_path: Path, key: str, value: str, expected: str
+) -> None:
+    path = write(tmp_path, MINIMAL + f"\n[compute]\n{key} = {value}\n")
+    with pytest.raises(
+        ConfigError, match=message(str(path), f"key 'compute.{key}' must be ", expected)
+    ):
+        load_config(path)
+
+
+def test_an_unknown_compute_key_suggests_the_closest(tmp_path: Path) -> None:
+    path = write(tmp_path, MINIMAL + '\n[compute]\nschedular = "tcp://h:8786"\n')
+    with pytest.raises(
+        ConfigError,
+        match=message(
+            "unknown key 'compute.schedular'; the known keys here are 'compute.scheduler', "
+            "'compute.workers'.",
+            "Did you mean 'compute.scheduler'?",
+        ),
+    ):
+        load_config(path)
+
+
 def test_settings_are_frozen(tmp_path: Path) -> None:
     cfg = load_config(write(tmp_path, MINIMAL))
     with pytest.raises(AttributeError):
@@ -232,7 +278,7 @@ def test_an_unknown_top_level_key_is_named_with_a_suggestion(tmp_path: Path) -> 
         match=message(
             str(path),
             ": unknown key 'modle'; the known keys here are 'model', 'seed', 'data', 'release', "
-            "'graph', 'audit', 'gate'.",
+            "'graph', 'audit', 'gate', 'compute'.",
             " Did you mean 'model'?",
         ),
     ):

@@ -31,18 +31,20 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from topoaudit._validation import Choice, Interval, Kind
+from topoaudit._validation import SCHEDULER_ADDRESS, Choice, Interval, Kind
 from topoaudit.errors import ConfigError, LimitError, closest_names
 from topoaudit.limits import (
     MAX_CONFIG_BYTES,
     MAX_INTERVALS,
     MAX_RELEASES,
     MAX_STABILITY_OFFSETS,
+    MAX_WORKERS,
     MIN_CELL_ROWS,
 )
 
 __all__ = [
     "AuditSettings",
+    "ComputeSettings",
     "Config",
     "DataSettings",
     "GatePolicy",
@@ -254,6 +256,29 @@ def gate_policy(table: Any, where: str) -> GatePolicy:
 
 
 @dataclass(frozen=True)
+class ComputeSettings:
+    """Where the audit's independent tasks run (the stability reruns, the resamples behind
+    the shape's confidence, the graphs at other cover settings).
+
+    ``scheduler``: the address of a Dask scheduler, ``"tcp://HOST:PORT"`` as ``dask
+    scheduler`` prints it; the tasks then run on its workers. Without it they run on this
+    machine, in ``workers`` local processes: ``"auto"`` (the default) is one per usable
+    core, ``1`` runs everything in the audit's own process. ``topoaudit audit
+    --scheduler`` overrides the key. Where an audit ran never changes its bundle: these
+    settings are not recorded in it, and the result is the same everywhere.
+    """
+
+    scheduler: str | None = None
+    workers: int | str = "auto"
+
+    _checks = {
+        "scheduler": [SCHEDULER_ADDRESS],
+        "workers": [_AUTO, Interval(int, 1, MAX_WORKERS)],
+    }
+    _required = ()
+
+
+@dataclass(frozen=True)
 class Config:
     """Everything one audit needs."""
 
@@ -263,6 +288,7 @@ class Config:
     graph: GraphSettings = field(default_factory=GraphSettings)
     audit: AuditSettings = field(default_factory=AuditSettings)
     gate: GatePolicy = field(default_factory=GatePolicy)
+    compute: ComputeSettings = field(default_factory=ComputeSettings)
     seed: int = 0
     source: Path | None = None
 
@@ -279,7 +305,8 @@ class Config:
         raise ConfigError(msg)
 
     def to_dict(self) -> dict[str, Any]:
-        """A JSON-ready copy (paths as strings, tuples as lists)."""
+        """A JSON-ready copy (paths as strings, tuples as lists), without the
+        ``[compute]`` settings: where an audit runs is no part of what it found."""
 
         def plain(v: Any) -> Any:
             if dataclasses.is_dataclass(v):
@@ -294,6 +321,7 @@ class Config:
 
         out = plain(self)
         out.pop("source", None)
+        out.pop("compute", None)
         for r in out["releases"]:  # a release on the [data] file names no file of its own
             if r.get("data") is None:
                 r.pop("data", None)
@@ -306,8 +334,9 @@ _SECTIONS = {
     "graph": GraphSettings,
     "audit": AuditSettings,
     "gate": GatePolicy,
+    "compute": ComputeSettings,
 }
-_TOP_KEYS = ("model", "seed", "data", "release", "graph", "audit", "gate")
+_TOP_KEYS = ("model", "seed", "data", "release", "graph", "audit", "gate", "compute")
 
 
 def _fail(where: str, msg: str) -> ConfigError:

@@ -21,6 +21,7 @@ __all__ = [
     "MAX_ROWS",
     "MAX_SEGMENT_LEVELS",
     "MAX_STABILITY_OFFSETS",
+    "MAX_WORKERS",
     "MIN_CELL_ROWS",
 ]
 
@@ -57,3 +58,6 @@ MAX_RELEASES = 100
 #: Entries of each of the config's stability offset lists (the grid reruns the graph
 #: search once per pair, so 10 x 10 offsets already mean 100 reruns).
 MAX_STABILITY_OFFSETS = 10
+#: Local worker processes of one audit (``[compute] workers``); each holds a rerun's
+#: working copy of the rows, so the bound is far above the cores of one machine.
+MAX_WORKERS = 256

@@ -13,9 +13,17 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from topoaudit.config import AuditSettings, Config, GraphSettings, load_config, parse_config
+from topoaudit._validation import is_scheduler_address
+from topoaudit.config import (
+    AuditSettings,
+    ComputeSettings,
+    Config,
+    GraphSettings,
+    load_config,
+    parse_config,
+)
 from topoaudit.errors import ConfigError, TopoauditError
-from topoaudit.limits import MAX_INTERVALS
+from topoaudit.limits import MAX_INTERVALS, MAX_WORKERS
 
 FUZZ = settings(
     max_examples=150,
@@ -112,6 +120,7 @@ BASE: dict[str, Any] = {
     "release": [{"name": "r1", "score": "s1", "threshold": 0.4}],
     "graph": {"n_intervals": 12, "overlap": 0.25},
     "audit": {"fdr": 0.1},
+    "compute": {"workers": 2},
 }
 
 COLUMNS = st.sampled_from(["id", "y", "s1", "x1", "x2", "", " ", "\x00", "a" * 70, "..", "r1"])
@@ -166,10 +175,18 @@ KEY_VALUES: dict[tuple[str, str], st.SearchStrategy[Any]] = {
         for k in AuditSettings._checks
         if k not in ("local_model", "stability_intervals", "stability_overlaps", "segments")
     },
+    ("compute", "scheduler"): st.one_of(
+        STR_KEY,
+        st.sampled_from(
+            ["tcp://127.0.0.1:8786", "tls://[::1]:8786", "tcp://h:0", "tcp://h:65536", "h:8786"]
+        ),
+    ),
+    ("compute", "workers"): st.one_of(st.just("auto"), NUM_KEY),
 }
 KNOWN_KEYS = sorted(KEY_VALUES)
 KNOWN_NAMES = {k for _, k in KNOWN_KEYS}
 assert {k for s, k in KNOWN_KEYS if s == "graph"} == set(GraphSettings._checks)
+assert {k for s, k in KNOWN_KEYS if s == "compute"} == set(ComputeSettings._checks)
 
 
 def set_key(doc: dict[str, Any], section: str, key: str, value: Any) -> dict[str, Any]:
@@ -189,6 +206,8 @@ def dotted(section: str, key: str) -> str:
 
 
 def stored(cfg: Config, section: str, key: str) -> Any:
+    if section == "compute":  # kept in the config, never in its record (to_dict)
+        return getattr(cfg.compute, key)
     plain = cfg.to_dict()
     if section == "":
         return plain[key]
@@ -283,7 +302,7 @@ def test_random_values_for_known_keys_are_kept_or_refused_by_name(
 
 @FUZZ
 @given(
-    section=st.sampled_from(["data", "graph", "audit", "release"]),
+    section=st.sampled_from(["data", "graph", "audit", "release", "compute"]),
     key=TEXT.filter(lambda k: k not in KNOWN_NAMES),
     value=SCALARS,
 )
@@ -295,7 +314,7 @@ def test_an_unknown_key_is_named(section: str, key: str, value: Any) -> None:
 
 
 @FUZZ
-@given(section=st.sampled_from(["data", "graph", "audit", "release"]), value=VALUES)
+@given(section=st.sampled_from(["data", "graph", "audit", "release", "compute"]), value=VALUES)
 def test_a_section_of_the_wrong_kind_is_refused(section: str, value: Any) -> None:
     assume(not isinstance(value, dict) and not (section == "release" and value == []))
     doc = {**BASE, section: value}
@@ -318,6 +337,8 @@ def check_invariants(cfg: Config) -> None:
     assert all(math.isfinite(o) and -1 < o < 1 for o in a.stability_overlaps)
     assert all(abs(i) < MAX_INTERVALS for i in a.stability_intervals)
     assert cfg.data.id != cfg.data.target
+    assert cfg.compute.scheduler is None or is_scheduler_address(cfg.compute.scheduler)
+    assert cfg.compute.workers == "auto" or 1 <= cfg.compute.workers <= MAX_WORKERS
     assert all(r.score not in (cfg.data.id, cfg.data.target) for r in cfg.releases)
     assert 0 <= cfg.seed < 2**32
 
