@@ -4,7 +4,10 @@ from __future__ import annotations
 
 import json
 
+import pytest
+
 from topoaudit.cli import main
+from topoaudit.demo import write_demo_project
 
 
 def test_check_prints_the_table_and_exits_zero(capsys):
@@ -38,3 +41,14 @@ def test_demo_audits_two_releases_publishes_them_and_builds_the_site(tmp_path, c
         )["release"]
         == "2026.2"
     )
+
+
+@pytest.mark.parametrize("address", ["10.0.0.5:8786", "tcp://10.0.0.5", "http://10.0.0.5:8786"])
+def test_audit_refuses_a_scheduler_address_it_cannot_use(tmp_path, capsys, address):
+    config = write_demo_project(tmp_path / "project", 300, seed=7)
+    argv = ["audit", str(config), "--out", str(tmp_path / "b"), "--scheduler", address, "--quiet"]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert "--scheduler must be a Dask scheduler address tcp://HOST:PORT" in err
+    assert f"got {address!r}." in err
+    assert not (tmp_path / "b").exists()

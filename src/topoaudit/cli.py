@@ -77,6 +77,21 @@ def audit_command(
     return shlex.join(words + (["--previous", str(previous)] if previous else []))
 
 
+def _with_scheduler(config, scheduler: str | None):
+    """``config`` with its ``[compute] scheduler`` replaced by ``--scheduler``, if given."""
+    import dataclasses
+
+    from topoaudit._validation import SCHEDULER_ADDRESS, is_scheduler_address
+
+    if scheduler is None:
+        return config
+    if not is_scheduler_address(scheduler):
+        msg = f"--scheduler must be {SCHEDULER_ADDRESS.describe()}; got {scheduler!r}."
+        raise TopoauditError(msg)
+    compute = dataclasses.replace(config.compute, scheduler=scheduler)
+    return dataclasses.replace(config, compute=compute)
+
+
 def _audit(args: argparse.Namespace) -> int:
     from topoaudit.audit.run import run_audit
     from topoaudit.config import load_config
@@ -87,7 +102,8 @@ def _audit(args: argparse.Namespace) -> int:
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
         msg = f"{out}: the output folder exists and is not empty; choose a new folder."
         raise TopoauditError(msg)
-    config = load_config(args.config)
+    config = _with_scheduler(load_config(args.config), args.scheduler)
+    # where it runs is no part of the bundle: the command recorded leaves --scheduler out
     command = audit_command(args.config, args.out, args.release, args.previous)
     with _progress(args) as say:
         audit = run_audit(
@@ -300,6 +316,13 @@ def _parser() -> argparse.ArgumentParser:
         "--previous",
         help="the bundle of the release before, when this release has a data file of its "
         "own: its rows are placed on that release's graph (drift, and regions followed)",
+    )
+    p.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="run the audit's independent tasks on the Dask cluster whose scheduler is at "
+        "ADDRESS (tcp://HOST:PORT); overrides the config's [compute] scheduler, and changes "
+        "nothing in the bundle",
     )
     _progress_options(p)
     p.set_defaults(run=_audit)

@@ -11,11 +11,12 @@ from sklearn.metrics import roc_auc_score
 from statsmodels.stats.proportion import proportion_confint
 
 from reference_checks.planted_pockets import simulate
-from topoaudit.audit.run import run_audit
+from topoaudit.audit import run as run_module
+from topoaudit.audit.run import executor_spec, run_audit
 from topoaudit.bundle.files import canonical_json
 from topoaudit.bundle.records import Analysis
 from topoaudit.cli import main
-from topoaudit.config import load_config
+from topoaudit.config import load_config, parse_config
 
 CONFIG = """
 model = "sim-model"
@@ -249,3 +250,31 @@ def test_a_bundle_written_before_the_new_fields_still_reads(audit, tmp_path):
     assert old.weak_regions[0].local_model.recalibrated_loss is None
     assert old.weak_regions[0].confirmation.scale is None
     assert old.comparison.overall.roc_auc is None
+
+
+@pytest.mark.parametrize(
+    ("compute", "cores", "rows", "expected"),
+    [
+        ({}, 2, 5_000, 2),
+        ({}, 2, 1_000, None),
+        ({}, 1, 5_000, None),
+        ({"workers": 1}, 2, 5_000, 1),
+        ({"workers": 3}, 2, 100, 3),
+        ({"scheduler": "tcp://10.0.0.5:8786", "workers": 1}, 2, 100, "tcp://10.0.0.5:8786"),
+    ],
+    ids=["auto", "auto-small", "auto-one-core", "one", "three", "scheduler"],
+)
+def test_the_audit_runs_its_tasks_where_the_compute_section_says(
+    monkeypatch, compute, cores, rows, expected
+):
+    # reference: the rule ComputeSettings documents (common practice, no source)
+    monkeypatch.setattr(run_module, "_usable_cores", lambda: cores)
+    config = parse_config(
+        {
+            "model": "m",
+            "data": {"path": "rows.csv", "id": "id", "target": "y"},
+            "release": [{"name": "r1", "score": "s1"}],
+            "compute": compute,
+        }
+    )
+    assert executor_spec(config, rows) == expected

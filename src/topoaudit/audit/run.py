@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from sklearn.preprocessing import StandardScaler
+from threadpoolctl import threadpool_limits
 
 from topoaudit.audit.compare import compare_releases
 from topoaudit.audit.describe import describe_region
@@ -28,7 +29,7 @@ from topoaudit.audit.local import local_model_test
 from topoaudit.audit.metrics import error_mix, outcome_table
 from topoaudit.audit.newdata import Placed, place_on_previous
 from topoaudit.audit.regions import Partition, partition_graph
-from topoaudit.audit.search import SearchGraph, SearchSettings, search_graphs
+from topoaudit.audit.search import ErrorLens, SearchGraph, SearchSettings, search_graphs
 from topoaudit.audit.segments import declared_segments
 from topoaudit.audit.shape import describe_shape, place_on_features
 from topoaudit.audit.stability import stability_runs
@@ -42,17 +43,21 @@ from topoaudit.audit.weak import (
 )
 from topoaudit.bundle import records as rec
 from topoaudit.bundle.files import build_date, write_bundle
-from topoaudit.config import Config, Release
+from topoaudit.config import Config, GraphSettings, Release
 from topoaudit.data import Dataset, load_dataset
+from topoaudit.mapper.executor import make_executor, map_shared, open_executor
 from topoaudit.mapper.features import feature_confidence
 from topoaudit.mapper.graph import MapperBuilder, MapperGraph
 from topoaudit.mapper.topology import invariants
 from topoaudit.wording import plural
 
-__all__ = ["Audit", "AuditInputs", "run_audit"]
+__all__ = ["Audit", "AuditInputs", "executor_spec", "run_audit"]
 
 Progress = Callable[[str], None]
 STEPS = 8
+#: below this many rows, ``[compute] workers = "auto"`` runs every task in the audit's own
+#: process: starting worker processes costs more than they save on so few rows
+PROCESS_ROWS = 2000
 
 
 @dataclass(frozen=True, eq=False)
@@ -78,6 +83,7 @@ class AuditInputs:
     task: Task
     X: np.ndarray  # the features as the graphs see them (standardised if asked)
     say: Progress
+    executor: Any = None  # where independent tasks run (see topoaudit.mapper.executor)
 
     @property
     def score(self) -> np.ndarray:
@@ -121,9 +127,11 @@ def prepare(
     *,
     release: str | None = None,
     progress: Progress | None = None,
+    executor: Any = None,
 ) -> AuditInputs:
     """Load the release's data (unless given) and pick the release and the one before it;
-    the one before is compared with it row by row only when its scores are on these rows."""
+    the one before is compared with it row by row only when its scores are on these rows.
+    ``executor`` is where the audit's independent tasks run (serial when None)."""
     rel = config.release(release) if release else config.releases[-1]
     ds = dataset if dataset is not None else load_dataset(config, rel.name)
     index = [r.name for r in config.releases].index(rel.name)
@@ -137,10 +145,40 @@ def prepare(
         task=task_named(ds.task),
         X=X,
         say=progress or (lambda _message: None),
+        executor=make_executor(executor),
     )
 
 
 # -- the shown graph and its shape ------------------------------------------------------------
+
+
+def _shown_builder(
+    graph: GraphSettings,
+    score: np.ndarray,
+    seed: int,
+    *,
+    n_intervals: Any = None,
+    overlap: Any = None,
+    clusterer: Any = None,
+) -> MapperBuilder:
+    """The builder of the graph shown for the data's shape (not fitted): the config's
+    settings, or others given."""
+    if graph.filter == "score":
+        lens: Any = score
+        params = None
+    elif graph.filter == "pca":
+        lens, params = "pca", {"n_components": graph.components}
+    else:
+        lens, params = graph.filter, None
+    return MapperBuilder(
+        lens,
+        filter_params=params,
+        cover=graph.cover,
+        n_intervals=graph.n_intervals if n_intervals is None else n_intervals,
+        overlap=graph.overlap if overlap is None else overlap,
+        clusterer=graph.clusterer if clusterer is None else clusterer,
+        random_state=seed,
+    )
 
 
 def shown_graph(
@@ -148,22 +186,13 @@ def shown_graph(
 ) -> MapperBuilder:
     """The fitted builder of the graph shown for the data's shape, at the config's
     settings (``"auto"``: chosen from the data) or at others."""
-    g = inp.config.graph
-    if g.filter == "score":
-        lens: Any = inp.score
-        params = None
-    elif g.filter == "pca":
-        lens, params = "pca", {"n_components": g.components}
-    else:
-        lens, params = g.filter, None
-    builder = MapperBuilder(
-        lens,
-        filter_params=params,
-        cover=g.cover,
-        n_intervals=g.n_intervals if n_intervals is None else n_intervals,
-        overlap=g.overlap if overlap is None else overlap,
-        clusterer=g.clusterer if clusterer is None else clusterer,
-        random_state=inp.seed,
+    builder = _shown_builder(
+        inp.config.graph,
+        inp.score,
+        inp.seed,
+        n_intervals=n_intervals,
+        overlap=overlap,
+        clusterer=clusterer,
     )
     return builder.fit(inp.X)
 
@@ -181,13 +210,11 @@ def shape_of(
     }
     if builder.filter_values_.shape[1] != 1:
         return [], rec.ShapeRecord(**common, resamples=0, resample_rows=0, features=(), two_d=True)
-    n = inp.config.graph.resamples
-    jobs = 2 if n >= 10 and inp.ds.n_rows >= 2000 and (os.cpu_count() or 1) >= 2 else None
     summary = feature_confidence(
         builder,
         inp.X,
-        n_resamples=n,
-        executor=jobs,
+        n_resamples=inp.config.graph.resamples,
+        executor=inp.executor,
         random_state=inp.seed,
         progress=lambda message: inp.step(2, f"features of the shape, {message}"),
     )
@@ -201,19 +228,46 @@ def shape_of(
     return views, record
 
 
+def _grid_point(
+    shared: np.ndarray,
+    graph: GraphSettings,
+    seed: int,
+    n_intervals: int,
+    overlap: float,
+    clusterer: Any,
+) -> rec.GridPoint:
+    """The shown graph's invariants at other cover settings (one task): ``shared`` holds
+    the features and, last, the release's scores. On one native thread wherever it runs,
+    so every executor gives the same graph."""
+    X = np.ascontiguousarray(shared[:, :-1])
+    score = np.ascontiguousarray(shared[:, -1])
+    with threadpool_limits(limits=1):
+        builder = _shown_builder(
+            graph, score, seed, n_intervals=n_intervals, overlap=overlap, clusterer=clusterer
+        ).fit(X)
+    inv = dataclasses.asdict(invariants(builder.graph_))
+    return rec.GridPoint(**inv, n_intervals=n_intervals, overlap=overlap)
+
+
 def settings_grid(inp: AuditInputs, builder: MapperBuilder) -> tuple[rec.GridPoint, ...]:
-    """The shown graph's invariants at the stability offsets around the settings used."""
+    """The shown graph's invariants at the stability offsets around the settings used,
+    each one a task on the audit's executor."""
     a = inp.config.audit
     base_k, base_o = builder.n_intervals_[0], builder.overlap_[0]
-    grid = []
+    tasks = []
     for di in a.stability_intervals:
         for do in a.stability_overlaps:
             k = max(1, base_k + di)
             o = float(np.clip(base_o + do, 0.0, 0.9))
-            other = shown_graph(inp, n_intervals=k, overlap=o, clusterer=builder.clusterer_)
-            inv = dataclasses.asdict(invariants(other.graph_))
-            grid.append(rec.GridPoint(**inv, n_intervals=k, overlap=o))
-    return tuple(grid)
+            tasks.append((inp.config.graph, inp.seed, k, o, builder.clusterer_))
+    if not tasks:
+        return ()
+    shared = np.column_stack([inp.X, inp.score]).astype(np.float64, copy=False)
+
+    def done(n: int) -> None:
+        inp.step(7, f"the shown graph at other cover settings, {n} of {len(tasks)}")
+
+    return tuple(map_shared(inp.executor, _grid_point, shared, tasks, progress=done))
 
 
 # -- weak regions -------------------------------------------------------------------------------
@@ -225,7 +279,9 @@ def search(inp: AuditInputs) -> Search:
     losses = inp.task.losses(inp.ds.target, inp.score, inp.release.threshold)
     discovery = split_halves(inp.ds.n_rows, inp.task.strata(inp.ds.target), inp.seed)
     settings = SearchSettings(n_intervals=a.search_intervals, node_rows=a.node_rows, folds=a.folds)
-    graphs = search_graphs(inp.X, losses, discovery, settings, random_state=inp.seed)
+    graphs = search_graphs(
+        inp.X, losses, discovery, settings, random_state=inp.seed, executor=inp.executor
+    )
     found = find_weak_regions(
         graphs, losses, discovery, fdr=a.fdr, min_rows=a.min_rows, random_state=inp.seed
     )
@@ -354,6 +410,9 @@ def with_stability(
             min_rows=a.min_rows,
             match_jaccard=a.match_jaccard,
             random_state=inp.seed,
+            lens=ErrorLens.of(found.graphs),
+            search_regions=[f.rows for f in found.weak],
+            executor=inp.executor,
             progress=lambda message: inp.step(6, message),
         )
     shares = [[r.found[j] for r in runs] for j in range(len(weak))]
@@ -625,6 +684,27 @@ def drift_record(placed: Placed | None) -> rec.Drift | None:
     )
 
 
+def _usable_cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return os.cpu_count() or 1
+
+
+def executor_spec(config: Config, n_rows: int) -> Any:
+    """Where an audit of ``n_rows`` rows runs its tasks, as
+    :func:`~topoaudit.mapper.executor.make_executor` takes it: the ``[compute]``
+    scheduler's address when one is set, else ``[compute] workers`` local processes
+    (``"auto"``: one per usable core, none below :data:`PROCESS_ROWS` rows)."""
+    compute = config.compute
+    if compute.scheduler is not None:
+        return compute.scheduler
+    if compute.workers == "auto":
+        cores = _usable_cores()
+        return cores if cores > 1 and n_rows >= PROCESS_ROWS else None
+    return compute.workers
+
+
 def run_audit(
     config: Config,
     dataset: Dataset | None = None,
@@ -633,6 +713,7 @@ def run_audit(
     progress: Progress | None = None,
     command: str = "",
     previous: str | Path | None = None,
+    executor: Any = None,
 ) -> Audit:
     """Audit one release of ``config`` (by default its last) on its data.
 
@@ -640,8 +721,25 @@ def run_audit(
     the one just before it, on the same rows. When the release has a data file of its own
     and ``previous`` is the earlier release's bundle, its rows are placed on that
     release's graph (:mod:`topoaudit.audit.newdata`).
+
+    The independent tasks (resamples, reruns, graphs at other settings) run on
+    ``executor`` (an executor, or what :func:`~topoaudit.mapper.executor.make_executor`
+    takes), by default where ``config.compute`` says (:func:`executor_spec`). The bundle
+    is the same wherever they run.
     """
     inp = prepare(config, dataset, release=release, progress=progress)
+    spec = executor if executor is not None else executor_spec(config, inp.ds.n_rows)
+    with open_executor(spec) as ex:
+        connect = getattr(ex, "connect", None)
+        if connect is not None:
+            inp.say(f"connecting to the cluster at {getattr(ex, 'address', ex)}")
+            connect()
+        return _audit(dataclasses.replace(inp, executor=ex), command, previous)
+
+
+def _audit(inp: AuditInputs, command: str, previous: str | Path | None) -> Audit:
+    """The steps of :func:`run_audit`, in order."""
+    config = inp.config
     placed = placed_rows(inp, previous)
     ds = inp.ds
     size = f"{plural(ds.n_rows, 'row')} x {plural(ds.X.shape[1], 'feature')}"

@@ -50,13 +50,18 @@ from topoaudit.mapper.clustering import KMeansMesh
 from topoaudit.mapper.graph import MapperBuilder, MapperGraph
 
 __all__ = [
+    "ErrorLens",
     "SearchGraph",
     "SearchSettings",
+    "error_lens",
     "permutation_drops",
     "relevance_weights",
     "search_graphs",
     "smoothed_excess",
 ]
+
+#: rows queried at once by the neighbour smoother
+_BLOCK = 4096
 
 
 @dataclass(frozen=True)
@@ -169,23 +174,96 @@ def relevance_weights(
     return keep.astype(float), mean
 
 
-def smoothed_excess(Z: np.ndarray, loss: Losses, discovery: np.ndarray, k: int) -> np.ndarray:
-    """Mean excess of each row's ``k`` nearest discovery rows in ``Z`` (steps 2 and 3)."""
-    d = np.flatnonzero(discovery)
-    excess = _excess(loss, d)
-    k = int(min(k, d.size - 1))
+def _smoothed_rows(shared: np.ndarray, start: int, stop: int, k: int) -> np.ndarray:
+    """Rows ``start:stop`` of :func:`smoothed_excess` (one task): ``shared`` holds the
+    weighted space, the discovery half (0 or 1) and each discovery row's excess. Each task
+    indexes the discovery rows itself; on one native thread wherever it runs."""
+    Z = np.ascontiguousarray(shared[:, :-2])
+    own_half = shared[:, -2] > 0.5
+    d = np.flatnonzero(own_half)
+    excess = np.ascontiguousarray(shared[d, -1])
     algorithm = "auto" if Z.shape[1] <= 8 else "brute"
-    nn = NearestNeighbors(n_neighbors=k + 1, algorithm=algorithm).fit(Z[d])
-    lens = np.empty(Z.shape[0])
-    for start in range(0, Z.shape[0], 4096):
-        stop = min(start + 4096, Z.shape[0])
-        idx = nn.kneighbors(Z[start:stop], return_distance=False)
-        own = discovery[start:stop]
-        # discovery rows: drop the nearest (the row itself); confirmation rows: keep the k nearest
-        lens[start:stop] = np.where(
-            own, excess[idx[:, 1:]].mean(axis=1), excess[idx[:, :k]].mean(axis=1)
+    out = np.empty(stop - start)
+    with threadpool_limits(limits=1):
+        nn = NearestNeighbors(n_neighbors=k + 1, algorithm=algorithm).fit(Z[d])
+        for first in range(start, stop, _BLOCK):
+            last = min(first + _BLOCK, stop)
+            idx = nn.kneighbors(Z[first:last], return_distance=False)
+            own = own_half[first:last]
+            # discovery rows: drop the nearest (the row itself); others: keep the k nearest
+            out[first - start : last - start] = np.where(
+                own, excess[idx[:, 1:]].mean(axis=1), excess[idx[:, :k]].mean(axis=1)
+            )
+    return out
+
+
+def smoothed_excess(
+    Z: np.ndarray, loss: Losses, discovery: np.ndarray, k: int, *, executor: Any = None
+) -> np.ndarray:
+    """Mean excess of each row's ``k`` nearest discovery rows in ``Z`` (steps 2 and 3).
+
+    The rows are queried in about eight tasks on ``executor`` (serial when None); the
+    values do not depend on where they run."""
+    from topoaudit.mapper.executor import make_executor, map_shared
+
+    d = np.flatnonzero(discovery)
+    k = int(min(k, d.size - 1))
+    excess = np.zeros(Z.shape[0])
+    excess[d] = _excess(loss, d)
+    shared = np.column_stack([Z, discovery, excess]).astype(np.float64, copy=False)
+    n = Z.shape[0]
+    step = _BLOCK * max(1, -(-n // (_BLOCK * 8)))
+    tasks = [(start, min(start + step, n), k) for start in range(0, n, step)]
+    return np.concatenate(map_shared(make_executor(executor), _smoothed_rows, shared, tasks))
+
+
+@dataclass(frozen=True, eq=False)
+class ErrorLens:
+    """The lens of the error-aware graph (steps 1 to 3 of the module docstring): the 0/1
+    weight and the mean importance of each feature, and each row's smoothed excess.
+
+    It depends on the rows, their losses, the discovery half, ``folds``, ``neighbours``
+    and the seed, not on the covers: reruns of the search at other interval counts and
+    overlaps on the same rows reuse it (:func:`search_graphs`, ``lens=``).
+    """
+
+    weights: np.ndarray
+    importance: np.ndarray
+    values: np.ndarray
+
+    @classmethod
+    def of(cls, graphs: list[SearchGraph]) -> ErrorLens:
+        """The lens the error-aware graph of ``graphs`` was built on."""
+        aware = next(g for g in graphs if g.name == "error_aware")
+        return cls(aware.weights, aware.importance, aware.lens)
+
+
+def _total(losses: list[Losses]) -> Losses:
+    return next(loss for loss in losses if loss.kind in ("error", "squared_error"))
+
+
+def error_lens(
+    X: np.ndarray,
+    losses: list[Losses],
+    discovery: np.ndarray,
+    settings: SearchSettings = SearchSettings(),
+    *,
+    random_state: int = 0,
+    executor: Any = None,
+) -> ErrorLens:
+    """The lens of the error-aware graph of standardised ``X`` (see module docstring);
+    its neighbour smoother runs on ``executor`` (serial when None)."""
+    total = _total(losses)
+    with threadpool_limits(limits=1, user_api="openmp"):
+        weights, importance = relevance_weights(
+            X, total, discovery, folds=settings.folds, random_state=random_state
         )
-    return lens
+    # the weights are 0 or 1: the weighted space is the kept columns, which keeps the
+    # neighbour search low-dimensional (tree indexes are fast there)
+    Z = np.ascontiguousarray(X[:, weights > 0])
+    k = settings.k(int(discovery.sum()))
+    values = smoothed_excess(Z, total, discovery, k, executor=executor)
+    return ErrorLens(weights, importance, values)
 
 
 def search_graphs(
@@ -195,24 +273,30 @@ def search_graphs(
     settings: SearchSettings = SearchSettings(),
     *,
     random_state: int = 0,
+    lens: ErrorLens | None = None,
+    executor: Any = None,
 ) -> list[SearchGraph]:
     """Build the ``features`` and ``error_aware`` search graphs of standardised ``X``.
+
+    ``lens``: the :class:`ErrorLens` of the same rows, losses, halves, folds, neighbours
+    and seed, when it is known already (reruns at other covers); computed when None.
+    ``executor``: where the cover elements of the features graph and the neighbour
+    smoother's tasks run (serial when None); the graphs do not depend on it.
 
     The many small models here run on one OpenMP thread each: on folds of a few thousand
     rows, thread start-up costs more than a second thread gains, and one thread cannot
     oversubscribe the cores when other work runs beside it.
     """
+    if lens is None:
+        lens = error_lens(
+            X, losses, discovery, settings, random_state=random_state, executor=executor
+        )
     with threadpool_limits(limits=1, user_api="openmp"):
-        return _search_graphs(X, losses, discovery, settings, random_state=random_state)
+        return _search_graphs(X, lens, settings, random_state=random_state, executor=executor)
 
 
 def _search_graphs(
-    X: np.ndarray,
-    losses: list[Losses],
-    discovery: np.ndarray,
-    settings: SearchSettings,
-    *,
-    random_state: int,
+    X: np.ndarray, lens: ErrorLens, settings: SearchSettings, *, random_state: int, executor: Any
 ) -> list[SearchGraph]:
     mesh = KMeansMesh(node_rows=settings.node_rows, random_state=random_state)
     features = MapperBuilder(
@@ -222,26 +306,24 @@ def _search_graphs(
         overlap=settings.overlap,
         clusterer=mesh,
         random_state=random_state,
+        n_jobs=executor,
     ).fit(X)
-    total = next(loss for loss in losses if loss.kind in ("error", "squared_error"))
-    weights, importance = relevance_weights(
-        X, total, discovery, folds=settings.folds, random_state=random_state
-    )
-    # the weights are 0 or 1: the weighted space is the kept columns, which keeps the
-    # neighbour search low-dimensional (tree indexes are fast there)
-    Z = np.ascontiguousarray(X[:, weights > 0])
-    lens = smoothed_excess(Z, total, discovery, settings.k(int(discovery.sum())))
     aware = MapperBuilder(
-        lens,
+        lens.values,
         cover="balanced",
         n_intervals=settings.lens_intervals,
         overlap=settings.lens_overlap,
         clusterer=settings.lens_clusterer,
         random_state=random_state,
-    ).fit(Z)
+    ).fit(np.ascontiguousarray(X[:, lens.weights > 0]))
     return [
         SearchGraph("features", features.graph_, "grow"),
         SearchGraph(
-            "error_aware", aware.graph_, "level", lens=lens, weights=weights, importance=importance
+            "error_aware",
+            aware.graph_,
+            "level",
+            lens=lens.values,
+            weights=lens.weights,
+            importance=lens.importance,
         ),
     ]

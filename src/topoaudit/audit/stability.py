@@ -8,19 +8,33 @@ confirmed region of that run overlaps it with Jaccard at least ``match_jaccard``
 measured on the rows the run used. The share of runs in which it was found again is its
 stability. (The invariants of the graph shown for the data's shape at the same offsets
 are recorded by :func:`topoaudit.audit.run.run_audit`, not here.)
+
+Each rerun is one task, :func:`_rerun`, a pure function of its arguments, handed to an
+executor (:mod:`topoaudit.mapper.executor`): the rows, their losses, the halves and the
+lens of the error-aware graph travel once as one shared array, each task names its
+settings and its subsample. A rerun on every row differs from the search only in its
+covers, so it reuses the search's lens (:class:`~topoaudit.audit.search.ErrorLens`: the
+relevance model and the neighbour smoother, most of a search's cost) instead of fitting
+it again; a subsample fits its own.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
-from topoaudit.audit.search import SearchSettings, search_graphs
+from topoaudit.audit.search import ErrorLens, SearchSettings, search_graphs
 from topoaudit.audit.weak import Losses, _jaccard, find_weak_regions, merge_confirmed
+from topoaudit.mapper.executor import make_executor, map_shared
 
 __all__ = ["Rerun", "stability_runs"]
+
+#: share of the rows in each subsample rerun
+SUBSAMPLE_SHARE = 0.8
 
 
 @dataclass(frozen=True)
@@ -35,8 +49,109 @@ class Rerun:
     found: tuple[bool, ...]
 
 
-def _sub_losses(losses: Sequence[Losses], rows: np.ndarray) -> list[Losses]:
-    return [replace(x, observed=x.observed[rows], expected=x.expected[rows]) for x in losses]
+@dataclass(frozen=True)
+class _Plan:
+    """One rerun to do: its label, its settings and its subsample (None: every row)."""
+
+    label: str
+    kind: str
+    settings: SearchSettings
+    subsample: int | None
+
+
+def _subsample_rows(n_rows: int, r: int, random_state: int) -> np.ndarray:
+    """The rows of subsample ``r`` (0-based): the ``r + 1``-th draw of one seeded
+    generator, so each task draws its own rows and every executor the same ones."""
+    rng = np.random.default_rng([random_state, 29])
+    for _ in range(r):
+        rng.choice(n_rows, size=int(SUBSAMPLE_SHARE * n_rows), replace=False)
+    return np.sort(rng.choice(n_rows, size=int(SUBSAMPLE_SHARE * n_rows), replace=False))
+
+
+def _pack(
+    X: np.ndarray, losses: Sequence[Losses], discovery: np.ndarray, lens: ErrorLens | None
+) -> np.ndarray:
+    """The rerun tasks' shared array: the features, each loss's observed and expected
+    values, the discovery half (0 or 1) and the lens values (NaN without a lens)."""
+    columns = [np.asarray(X, dtype=np.float64)]
+    for loss in losses:
+        columns += [loss.observed[:, None], loss.expected[:, None]]
+    lens_values = lens.values if lens is not None else np.full(X.shape[0], np.nan)
+    columns += [discovery[:, None], lens_values[:, None]]
+    return np.hstack(columns).astype(np.float64, copy=False)
+
+
+def _unpack(
+    shared: np.ndarray, n_features: int, kinds: Sequence[tuple[str, bool]], rows: Any
+) -> tuple[np.ndarray, list[Losses], np.ndarray, np.ndarray]:
+    """The rows ``rows`` (a slice or positions) of :func:`_pack`'s array, as fresh
+    contiguous arrays: features, losses, discovery half, lens values."""
+
+    def column(j: int) -> np.ndarray:
+        return np.ascontiguousarray(shared[rows, j])
+
+    X = np.ascontiguousarray(shared[rows, :n_features])
+    losses, j = [], n_features
+    for kind, counts in kinds:
+        losses.append(Losses(kind, column(j), column(j + 1), counts))
+        j += 2
+    return X, losses, column(j) > 0.5, column(j + 1)
+
+
+def _rerun(
+    shared: np.ndarray,
+    n_features: int,
+    kinds: tuple[tuple[str, bool], ...],
+    plan: _Plan,
+    lens: tuple[np.ndarray, np.ndarray] | None,
+    fdr: float,
+    min_rows: int,
+    random_state: int,
+) -> list[np.ndarray]:
+    """One rerun (a task): the rows, as positions in the whole data, of each region it
+    confirms. ``lens`` (the weights and importances of the search's lens, its values
+    being in ``shared``) is reused on every row; None fits the lens on the run's rows.
+    Runs on one native thread wherever it runs, so every executor gives the same sums."""
+    n_rows = shared.shape[0]
+    if plan.subsample is None:
+        rows = np.arange(n_rows)
+        X, losses, discovery, values = _unpack(shared, n_features, kinds, slice(None))
+    else:
+        rows = _subsample_rows(n_rows, plan.subsample, random_state)
+        X, losses, discovery, values = _unpack(shared, n_features, kinds, rows)
+    known = ErrorLens(lens[0], lens[1], values) if lens is not None else None
+    with threadpool_limits(limits=1):
+        graphs = search_graphs(
+            X, losses, discovery, plan.settings, random_state=random_state, lens=known
+        )
+        found = find_weak_regions(
+            graphs, losses, discovery, fdr=fdr, min_rows=min_rows, random_state=random_state
+        )
+    return [rows[f.rows] for f in merge_confirmed(found)]
+
+
+def _plans(
+    settings: SearchSettings,
+    interval_offsets: Sequence[int],
+    overlap_offsets: Sequence[float],
+    resamples: int,
+) -> list[_Plan]:
+    plans = []
+    for di in interval_offsets:
+        for do in overlap_offsets:
+            s = replace(
+                settings,
+                n_intervals=max(2, settings.n_intervals + di),
+                lens_intervals=max(2, settings.lens_intervals + di),
+                overlap=float(np.clip(settings.overlap + do, 0.0, 0.9)),
+                lens_overlap=float(np.clip(settings.lens_overlap + do, 0.0, 0.9)),
+            )
+            label = f"intervals {s.lens_intervals}, overlap {s.lens_overlap:.2f}"
+            plans.append(_Plan(label, "grid", s, None))
+    for r in range(resamples):
+        label = f"subsample {r + 1} ({SUBSAMPLE_SHARE:.0%} of rows)"
+        plans.append(_Plan(label, "subsample", settings, r))
+    return plans
 
 
 def stability_runs(
@@ -53,45 +168,69 @@ def stability_runs(
     min_rows: int = 30,
     match_jaccard: float = 0.5,
     random_state: int = 0,
+    lens: ErrorLens | None = None,
+    search_regions: Sequence[np.ndarray] | None = None,
+    executor: Any = None,
     progress: Callable[[str], None] | None = None,
 ) -> list[Rerun]:
-    """Rerun the search over the grid and the subsamples (see module docstring)."""
-    plans: list[tuple[str, str, SearchSettings, np.ndarray]] = []
-    every = np.arange(X.shape[0])
-    for di in interval_offsets:
-        for do in overlap_offsets:
-            s = replace(
-                settings,
-                n_intervals=max(2, settings.n_intervals + di),
-                lens_intervals=max(2, settings.lens_intervals + di),
-                overlap=float(np.clip(settings.overlap + do, 0.0, 0.9)),
-                lens_overlap=float(np.clip(settings.lens_overlap + do, 0.0, 0.9)),
-            )
-            label = f"intervals {s.lens_intervals}, overlap {s.lens_overlap:.2f}"
-            plans.append((label, "grid", s, every))
-    rng = np.random.default_rng([random_state, 29])
-    for r in range(resamples):
-        rows = np.sort(rng.choice(X.shape[0], size=int(0.8 * X.shape[0]), replace=False))
-        plans.append((f"subsample {r + 1} (80% of rows)", "subsample", settings, rows))
-    out = []
-    for i, (label, kind, s, rows) in enumerate(plans):
-        if progress:
-            progress(f"stability run {i + 1} of {len(plans)}: {label}")
-        sub_losses = _sub_losses(losses, rows)
-        sub_disc = discovery[rows]
-        graphs = search_graphs(X[rows], sub_losses, sub_disc, s, random_state=random_state)
-        confirmed = merge_confirmed(
-            find_weak_regions(
-                graphs, sub_losses, sub_disc, fdr=fdr, min_rows=min_rows, random_state=random_state
-            )
+    """Rerun the search over the grid and the subsamples (see module docstring).
+
+    ``lens``: the search's :class:`~topoaudit.audit.search.ErrorLens` on these rows
+    (``ErrorLens.of(graphs)``), reused by the reruns on every row; fitted again by each
+    when None. ``search_regions``: the rows of each region the search itself confirmed
+    (merged); the rerun at the search's own settings on every row is the search, so it
+    takes them instead of running again (run again when None). ``executor``: where the
+    reruns run (any executor or spec that :func:`~topoaudit.mapper.executor.make_executor`
+    takes; serial when None). The result depends on none of the three.
+    """
+    plans = _plans(settings, interval_offsets, overlap_offsets, resamples)
+    if not plans:
+        return []
+    known_runs = {
+        i: list(search_regions)
+        for i, p in enumerate(plans)
+        if search_regions is not None and p.subsample is None and p.settings == settings
+    }
+    to_run = [p for i, p in enumerate(plans) if i not in known_runs]
+    shared = _pack(X, losses, discovery, lens)
+    kinds = tuple((x.kind, bool(x.counts)) for x in losses)
+    known = (lens.weights, lens.importance) if lens is not None else None
+    tasks = [
+        (
+            X.shape[1],
+            kinds,
+            p,
+            known if p.subsample is None else None,
+            fdr,
+            min_rows,
+            random_state,
         )
-        position = np.full(X.shape[0], -1, dtype=np.int64)
-        position[rows] = np.arange(rows.size)
-        found = []
-        for w in weak_rows:
-            mine = position[w[position[w] >= 0]]
-            found.append(any(_jaccard(mine, f.rows) >= match_jaccard for f in confirmed))
+        for p in to_run
+    ]
+    # a subsample fits its own lens: the costliest tasks, handed out first
+    weights = [2.0 if p.subsample is not None or known is None else 1.0 for p in to_run]
+
+    def done(k: int) -> None:
+        if progress is not None:
+            progress(f"stability run {k + len(known_runs)} of {len(plans)} done")
+
+    if progress is not None:
+        progress(f"stability runs: {len(plans)} reruns of the search, {len(to_run)} to run")
+    ran = iter(
+        map_shared(make_executor(executor), _rerun, shared, tasks, weights, done) if tasks else []
+    )
+    confirmed = [known_runs[i] if i in known_runs else next(ran) for i in range(len(plans))]
+    out = []
+    for plan, regions in zip(plans, confirmed, strict=True):
+        used = np.ones(X.shape[0], dtype=bool)
+        if plan.subsample is not None:
+            used[:] = False
+            used[_subsample_rows(X.shape[0], plan.subsample, random_state)] = True
+        found = tuple(
+            any(_jaccard(w[used[w]], f) >= match_jaccard for f in regions) for w in weak_rows
+        )
+        s = plan.settings
         out.append(
-            Rerun(label, kind, s.lens_intervals, s.lens_overlap, len(confirmed), tuple(found))
+            Rerun(plan.label, plan.kind, s.lens_intervals, s.lens_overlap, len(regions), found)
         )
     return out
