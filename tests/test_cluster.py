@@ -305,3 +305,17 @@ def test_a_listener_that_never_answers_is_named_after_the_timeout(silent_listene
     with pytest.raises(ClusterError, match=f"No Dask scheduler answered at {silent_listener}"):
         executor.connect()
     assert time.monotonic() - start < 20
+
+
+def test_a_scheduler_without_workers_is_named_after_the_timeout(tmp_path):
+    lonely = Cluster(tmp_path)  # a scheduler, no worker
+    try:
+        executor = DaskExecutor(lonely.address, timeout=3)
+        with pytest.raises(
+            ClusterError,
+            match=f"The Dask scheduler at {lonely.address} has no workers .*"
+            f"`dask worker {lonely.address}`",
+        ):
+            executor.connect()
+    finally:
+        lonely.stop()

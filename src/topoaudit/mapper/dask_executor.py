@@ -72,6 +72,18 @@ def _handshake(address: str, timeout: float) -> None:
         pool.submit(asyncio.run, bounded()).result()
 
 
+def _lost_errors() -> tuple[type[BaseException], ...]:
+    """What ``distributed`` raises when tasks are lost rather than failed: a task whose
+    workers kept dying, futures cancelled with the connection, a closed client or comm."""
+    from concurrent.futures import CancelledError
+
+    from distributed.client import ClosedClientError
+    from distributed.comm.core import CommClosedError
+    from distributed.scheduler import KilledWorker
+
+    return (KilledWorker, CancelledError, ClosedClientError, CommClosedError)
+
+
 def _close(client: Any) -> None:
     with contextlib.suppress(Exception):  # a client already cut off
         client.close()
@@ -199,7 +211,7 @@ class DaskExecutor:
             raise
         except Exception as exc:
             client.cancel(futures)
-            if type(exc).__name__ in ("KilledWorker", "CancelledError", "CommClosedError"):
+            if isinstance(exc, _lost_errors()):
                 msg = (
                     f"The Dask cluster at {self.address} lost the tasks of {name} "
                     f"({type(exc).__name__}: {exc}); its workers died repeatedly or the "
