@@ -19,8 +19,10 @@ error outside, whatever the scores say there. The families:
 * ``categorical``: a combination of a level of each of two categorical columns.
 
 The nulls have no pocket: ``calibrated`` draws outcomes from the scores; ``inflated``
-multiplies every row's error probability alike by ``strength`` (capped at 0.95), a
-release worse than its scores everywhere by the same factor.
+multiplies every row's error probability alike by ``strength``, a release worse than its
+scores everywhere by the same factor. That holds for factors below 2 only: a calibrated
+row's error probability is at most 0.5, and a larger factor would be capped near the
+decision boundary, inflating rows unevenly (the grid uses 1.25, 1.5 and 1.9).
 
 The design follows the planted-slice evaluation of Eyuboglu et al. (Domino, ICLR 2022),
 who plant slices of known rows and score recovery; the families and sizes here are our own.
