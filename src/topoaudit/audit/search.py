@@ -21,8 +21,8 @@ The lens is made in three steps, all from discovery labels only:
    training fold has not improved for 10 rounds, so a fold with no signal costs a few
    rounds instead of 150) and the permutation
    importance of each feature on the held-out folds (Breiman, 2001). A feature is kept
-   when its mean importance exceeds three standard errors and a quarter of the largest;
-   kept features get weight 1, the others 0 (all features, if none is kept);
+   when its mean importance exceeds three standard errors and a quarter of the largest
+   among those; kept features get weight 1, the others 0 (all features, if none is kept);
 2. in that weighted space, each row's lens value is the mean excess of its ``k`` nearest
    discovery rows, itself excluded (a nearest-neighbour smoother);
 3. confirmation rows get the same smoother over discovery rows, so no confirmation label
@@ -54,6 +54,7 @@ __all__ = [
     "SearchGraph",
     "SearchSettings",
     "error_lens",
+    "kept_features",
     "permutation_drops",
     "relevance_weights",
     "search_graphs",
@@ -167,11 +168,25 @@ def relevance_weights(
     draws_all = np.hstack(draws)
     mean = draws_all.mean(axis=1)
     se = draws_all.std(axis=1, ddof=1) / np.sqrt(draws_all.shape[1])
+    return kept_features(mean, se), mean
+
+
+def kept_features(mean: np.ndarray, se: np.ndarray) -> np.ndarray:
+    """The 0/1 weights of step 1 from the mean importances and their standard errors: a
+    feature is kept when its mean exceeds three standard errors and a quarter of the
+    largest mean among those (the largest of all may be indistinguishable from noise, and
+    then none would stay); every feature when none is kept.
+
+    Examples
+    --------
+    >>> kept_features(np.array([8.0, 1.0, 3.0]), np.array([10.0, 0.1, 0.1])).tolist()
+    [0.0, 1.0, 1.0]
+    """
     keep = (mean > 3 * se) & (mean > 0)
     if not keep.any():
-        return np.ones(X.shape[1]), mean
-    keep &= mean >= 0.25 * mean.max()
-    return keep.astype(float), mean
+        return np.ones(mean.size)
+    keep &= mean >= 0.25 * mean[keep].max()
+    return keep.astype(float)
 
 
 def _smoothed_rows(shared: np.ndarray, start: int, stop: int, k: int) -> np.ndarray:
