@@ -38,6 +38,7 @@ bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
 	$(BIN)/python -m tests.benchmarks.shape
 	$(BIN)/python -m tests.benchmarks.audit
+	$(BIN)/python -m tests.benchmarks.scale
 	$(BIN)/python -m tests.benchmarks.site
 	$(BIN)/python -m tests.benchmarks.grid
 
