@@ -20,6 +20,15 @@ from topoaudit.mapper.executor import ProcessExecutor
 GRID = {"interval_offsets": (0, 2), "overlap_offsets": (0.0,), "resamples": 1}
 
 
+@pytest.fixture(scope="module", autouse=True)
+def _stop_local_workers():
+    """The local worker processes this module starts are stopped when it ends."""
+    try:
+        yield
+    finally:
+        ProcessExecutor.shutdown()
+
+
 @pytest.fixture(scope="module")
 def searched():
     sim = simulate("island", 3000, n_features=6, seed=2)

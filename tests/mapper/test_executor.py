@@ -20,6 +20,15 @@ from topoaudit.mapper.executor import (
 )
 
 
+@pytest.fixture(scope="module", autouse=True)
+def _stop_local_workers():
+    """The local worker processes this module starts are stopped when it ends."""
+    try:
+        yield
+    finally:
+        ProcessExecutor.shutdown()
+
+
 def _row_sum(shared: np.ndarray, row: int, scale: float) -> float:
     return float(shared[row].sum() * scale)
 
