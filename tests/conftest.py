@@ -52,6 +52,18 @@ def pytest_configure(config: pytest.Config) -> None:
     threadpool_limits(int(os.environ["OMP_NUM_THREADS"]))
 
 
+@pytest.fixture(scope="module")
+def stop_local_workers() -> Iterator[None]:
+    """The local worker processes a module starts are stopped when it ends (use it with
+    ``pytestmark = pytest.mark.usefixtures("stop_local_workers")``)."""
+    from topoaudit.mapper.executor import ProcessExecutor
+
+    try:
+        yield
+    finally:
+        ProcessExecutor.shutdown()
+
+
 @contextlib.contextmanager
 def fixed_build_date() -> Iterator[None]:
     """SOURCE_DATE_EPOCH at 2026-01-01 for the block, restored after it."""

@@ -38,9 +38,12 @@ from topoaudit.config import load_config
 from topoaudit.demo import write_demo_project
 from topoaudit.errors import ClusterError
 from topoaudit.mapper.dask_executor import DaskExecutor
-from topoaudit.mapper.executor import ProcessExecutor
 
-pytestmark = [pytest.mark.cluster, pytest.mark.xdist_group("cluster")]
+pytestmark = [
+    pytest.mark.cluster,
+    pytest.mark.xdist_group("cluster"),
+    pytest.mark.usefixtures("stop_local_workers"),
+]
 
 BIN = Path(sys.executable).parent
 ROWS = 3000
@@ -126,15 +129,6 @@ class Cluster:
     def stop(self) -> None:
         for proc in reversed(self.procs):
             _stop(proc)
-
-
-@pytest.fixture(scope="module", autouse=True)
-def _stop_local_workers():
-    """The local worker processes this module starts are stopped when it ends."""
-    try:
-        yield
-    finally:
-        ProcessExecutor.shutdown()
 
 
 @pytest.fixture(scope="module")

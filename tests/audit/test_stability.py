@@ -20,13 +20,7 @@ from topoaudit.mapper.executor import ProcessExecutor
 GRID = {"interval_offsets": (0, 2), "overlap_offsets": (0.0,), "resamples": 1}
 
 
-@pytest.fixture(scope="module", autouse=True)
-def _stop_local_workers():
-    """The local worker processes this module starts are stopped when it ends."""
-    try:
-        yield
-    finally:
-        ProcessExecutor.shutdown()
+pytestmark = pytest.mark.usefixtures("stop_local_workers")
 
 
 @pytest.fixture(scope="module")

@@ -19,14 +19,7 @@ from topoaudit.mapper.executor import (
     open_executor,
 )
 
-
-@pytest.fixture(scope="module", autouse=True)
-def _stop_local_workers():
-    """The local worker processes this module starts are stopped when it ends."""
-    try:
-        yield
-    finally:
-        ProcessExecutor.shutdown()
+pytestmark = pytest.mark.usefixtures("stop_local_workers")
 
 
 def _row_sum(shared: np.ndarray, row: int, scale: float) -> float:
