@@ -12,30 +12,12 @@ ongoing monitoring, not a finding about the model.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
 from topoaudit.audit.stats import benjamini_hochberg
+from topoaudit.bundle.records import ShiftRecord
 
-__all__ = ["Shift", "shifts"]
-
-
-@dataclass(frozen=True)
-class Shift:
-    """One part of the graph: rows then and now, their shares and the test."""
-
-    part: int
-    rows_before: int
-    rows_after: int
-    share_before: float
-    share_after: float
-    p_value: float
-    p_adjusted: float
-
-    @property
-    def change(self) -> float:
-        return self.share_after - self.share_before
+__all__ = ["shifts"]
 
 
 def _chi_square(a_in: int, a_n: int, b_in: int, b_n: int) -> float:
@@ -47,7 +29,9 @@ def _chi_square(a_in: int, a_n: int, b_in: int, b_n: int) -> float:
     return float(st.chi2_contingency(table, correction=False).pvalue)
 
 
-def shifts(before: np.ndarray, after: np.ndarray, parts: np.ndarray | None = None) -> list[Shift]:
+def shifts(
+    before: np.ndarray, after: np.ndarray, parts: np.ndarray | None = None
+) -> list[ShiftRecord]:
     """The shift of each part between the earlier rows' labels ``before`` and the new
     rows' labels ``after`` (one label per row, for example each row's home region).
     ``parts``: the labels to report (default: every label seen)."""
@@ -60,13 +44,13 @@ def shifts(before: np.ndarray, after: np.ndarray, parts: np.ndarray | None = Non
     p_values = [_chi_square(counts_a[int(p)], n_a, counts_b[int(p)], n_b) for p in parts]
     adjusted = benjamini_hochberg(p_values) if p_values else []
     return [
-        Shift(
+        ShiftRecord(
             part=int(p),
             rows_before=counts_a[int(p)],
             rows_after=counts_b[int(p)],
             share_before=counts_a[int(p)] / n_a if n_a else 0.0,
             share_after=counts_b[int(p)] / n_b if n_b else 0.0,
-            p_value=pv,
+            p_value=float(pv),
             p_adjusted=float(q),
         )
         for p, pv, q in zip(parts, p_values, adjusted, strict=True)

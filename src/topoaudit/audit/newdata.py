@@ -17,9 +17,11 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from sklearn.preprocessing import StandardScaler
 
-from topoaudit.audit.drift import Shift, shifts
+from topoaudit.audit.drift import shifts
 from topoaudit.bundle.files import read_analysis, read_graph, read_members
+from topoaudit.bundle.records import ShiftRecord
 from topoaudit.data import Dataset
 from topoaudit.errors import BundleError, DataError
 from topoaudit.mapper.place import Placement, place_rows
@@ -35,8 +37,8 @@ class Placed:
     placement: Placement
     placed_on: np.ndarray  # the earlier row id each new row stands on
     rows_before: int
-    regions: list[Shift]
-    nodes: list[Shift]
+    regions: list[ShiftRecord]
+    nodes: list[ShiftRecord]
 
 
 def aligned_features(new: Dataset, first: Dataset, where: str) -> np.ndarray:
@@ -100,9 +102,8 @@ def place_on_previous(config, ds: Dataset, previous: str | Path, prepare, shown_
         msg = f"{folder}: its graph could not be rebuilt as published (nodes differ)."
         raise BundleError(msg)
     X_new = aligned_features(ds, first, str(ds.source or "the new data file"))
-    if config.graph.standardize:
-        mean, sd = first.X.mean(axis=0), first.X.std(axis=0)
-        X_new = (X_new - mean) / np.where(sd > 0, sd, 1.0)
+    if config.graph.standardize:  # scaled as prepare() scaled the earlier rows
+        X_new = StandardScaler().fit(first.X).transform(X_new)
     placement = place_rows(
         graph, inp.X, builder.filter_values_, X_new, filter_obj=builder._filter_obj
     )
@@ -111,21 +112,11 @@ def place_on_previous(config, ds: Dataset, previous: str | Path, prepare, shown_
     for node in read_graph(folder).nodes:
         node_region[node.id] = node.region
     region_parts = np.arange(1, int(node_region.max()) + 1) if node_region.size else None
-    before_home = _home_nodes(graph)
     return Placed(
         previous=earlier.release,
         placement=placement,
         placed_on=first.ids.astype(str)[placement.nearest],
         rows_before=first.n_rows,
         regions=shifts(members["region"].to_numpy(), node_region[home], region_parts),
-        nodes=shifts(before_home, home, np.arange(graph.n_nodes)),
+        nodes=shifts(graph.home_nodes(), home, np.arange(graph.n_nodes)),
     )
-
-
-def _home_nodes(graph) -> np.ndarray:
-    """Each row's home node (largest node holding it, lowest id on ties)."""
-    sizes = graph.node_sizes
-    out = np.full(graph.n_rows, -1, dtype=np.int64)
-    for v in sorted(range(graph.n_nodes), key=lambda v: (sizes[v], -v)):
-        out[graph.members[v]] = v
-    return out

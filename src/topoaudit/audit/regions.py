@@ -51,7 +51,6 @@ def partition_graph(
     communities = nx.community.louvain_communities(
         graph.to_networkx(), weight="jaccard", resolution=resolution, seed=random_state
     )
-    sizes = graph.node_sizes
     keyed = []
     for com in communities:
         nodes = sorted(com)
@@ -61,9 +60,6 @@ def partition_graph(
     node_region = np.zeros(graph.n_nodes, dtype=np.int64)
     for rid, (_, _, nodes) in enumerate(keyed, start=1):
         node_region[nodes] = rid
-    # home node of each row: the largest node holding it (lowest id on ties)
-    order = sorted(range(graph.n_nodes), key=lambda v: (sizes[v], -v))
-    row_region = np.zeros(graph.n_rows, dtype=np.int64)
-    for v in order:  # larger nodes are written last and win
-        row_region[graph.members[v]] = node_region[v]
+    home = graph.home_nodes()  # the largest node holding each row (lowest id on ties)
+    row_region = np.where(home >= 0, node_region[home], 0)
     return Partition(node_region=node_region, row_region=row_region)

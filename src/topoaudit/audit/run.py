@@ -667,20 +667,13 @@ def drift_record(placed: Placed | None) -> rec.Drift | None:
     """The record of :func:`placed_rows` (None without placed rows)."""
     if placed is None:
         return None
-
-    def shift(s) -> rec.ShiftRecord:
-        return rec.ShiftRecord(
-            s.part, s.rows_before, s.rows_after, s.share_before, s.share_after,
-            s.p_value, s.p_adjusted,
-        )  # fmt: skip
-
     return rec.Drift(
         previous=placed.previous,
         rows_before=placed.rows_before,
         rows_after=placed.placement.n_rows,
         outside=int(placed.placement.outside.size),
-        regions=tuple(shift(s) for s in placed.regions),
-        nodes=tuple(shift(s) for s in placed.nodes),
+        regions=tuple(placed.regions),
+        nodes=tuple(placed.nodes),
     )
 
 

@@ -181,6 +181,15 @@ class MapperGraph:
         np.cumsum(np.bincount(rows, minlength=self.n_rows), out=indptr[1:])
         return indptr, nodes[order]
 
+    def home_nodes(self) -> np.ndarray:
+        """Each row's home node: the largest node holding it, the lowest id on ties; -1 for
+        a row in no node."""
+        sizes = self.node_sizes
+        home = np.full(self.n_rows, -1, dtype=np.int64)
+        for v in sorted(range(self.n_nodes), key=lambda v: (sizes[v], -v)):
+            home[self.members[v]] = v  # larger nodes are written last and win
+        return home
+
     def rows_of(self, nodes: Any) -> np.ndarray:
         """The sorted positions of the rows held by any of ``nodes``."""
         nodes = list(nodes)

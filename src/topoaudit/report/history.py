@@ -30,7 +30,6 @@ ORIGIN_STATUS = {
     "returned": "returned",
     "missed before": "weak before, missed then",
 }
-FATE_WORDS = {"fixed": "fixed", "still weak": "still weak", "worse": "worse", "unclear": "unclear"}
 
 
 def _trend_frames(analyses: list[Any]) -> dict[str, tuple[str, pd.DataFrame]]:
@@ -110,8 +109,8 @@ def _lineage_table(lineage: Lineage) -> list[str]:
             if origin is not None and origin.origin == "returned":
                 events.append(f"{escape(step.after)}: returned")
             elif fate is not None and fate.after_id is None:
-                events.append(f"{escape(step.after)}: {FATE_WORDS[fate.fate]}")
-            elif fate is not None and fate.fate in ("worse",):
+                events.append(f"{escape(step.after)}: {fate.fate}")
+            elif fate is not None and fate.fate == "worse":
                 events.append(f"{escape(step.after)}: worse")
         weak_in = join_words([escape(r) for r in t.weak_in])
         lines.append(
