@@ -195,8 +195,7 @@ def _diff(args: argparse.Namespace) -> int:
     from topoaudit.report.gate import review_sections
 
     before, after = load_release(args.before), load_release(args.after)
-    lineage = follow([before, after])
-    regions = review_sections(lineage, lineage.steps[0], before, after)
+    regions = review_sections(follow([before, after]).steps[0], before, after)
     sys.stdout.write(diff_markdown(release_changes(args.before, args.after), regions=regions))
     return 0
 

@@ -26,7 +26,7 @@ from pathlib import Path
 
 import numpy as np
 
-from topoaudit.audit.lineage import Excess, Fate, Lineage, Origin, ReleaseRows, Step
+from topoaudit.audit.lineage import Excess, Fate, Origin, ReleaseRows, Step
 from topoaudit.audit.stats import binomial_upper_test
 from topoaudit.bundle import MIN_CELL_ROWS, is_small
 from topoaudit.config import GatePolicy
@@ -181,7 +181,7 @@ def _where(rel: ReleaseRows, local: str | None) -> str:
 
 
 def review_sections(
-    lineage: Lineage, step: Step, before: ReleaseRows, after: ReleaseRows, heading: str = "##"
+    step: Step, before: ReleaseRows, after: ReleaseRows, heading: str = "##"
 ) -> list[str]:
     """Markdown lines: the earlier regions' fates, then the new regions' origins."""
     lines = [
@@ -243,7 +243,6 @@ def _origin_lines(step: Step, before: ReleaseRows, after: ReleaseRows, heading: 
 def gate_markdown(
     verdict: Verdict,
     policy: GatePolicy,
-    lineage: Lineage,
     step: Step,
     rows: tuple[ReleaseRows, ReleaseRows],
     metric: MetricCheck | None,
@@ -271,7 +270,7 @@ def gate_markdown(
             f"{pvalue(metric.p_value)}).",
             "",
         ]
-    lines += review_sections(lineage, step, before, after, heading="###")
+    lines += review_sections(step, before, after, heading="###")
     if pages:
         base = pages.rstrip("/")
         lines += [
@@ -333,5 +332,5 @@ def run_gate(
     step = lineage.step_to(new.release)
     metric = metric_check(prev, new)
     verdict = decide(step, metric, policy)
-    text = gate_markdown(verdict, policy, lineage, step, (prev, new), metric, pages)
+    text = gate_markdown(verdict, policy, step, (prev, new), metric, pages)
     return verdict.code, text

@@ -177,7 +177,7 @@ def _compare_page(prev: PublishedRelease, r: PublishedRelease, lineage, rows) ->
     step = lineage.step_to(r.release) if lineage is not None else None
     regions = None
     if step is not None:
-        regions = review_sections(lineage, step, rows[prev.release], rows[r.release])
+        regions = review_sections(step, rows[prev.release], rows[r.release])
     return diff_markdown(d, heading="#", regions=regions)
 
 
