@@ -44,7 +44,8 @@ def auto_cell(result: CaseResult) -> str:
     if a.auto is not None:
         k = a.auto.n_intervals
         count = str(k[0]) if len(k) == 1 else " x ".join(str(c) for c in k)
-        chosen = f"{count} interval{'s' if k != (1,) else ''}, scale {a.auto.scale:.3g}"
+        rule = " by the histogram rule" if "histogram" in a.auto.resolution else ""
+        chosen = f"{count} interval{'s' if k != (1,) else ''}{rule}, scale {a.auto.scale:.3g}"
     if result.auto_passed:
         return f"pass ({chosen})"
     seen = a.got + ("" if a.networkx_agrees else "; networkx DISAGREES")

@@ -169,3 +169,31 @@ def test_the_shape_section_names_each_feature_in_words(fixture_archive):
         assert f"| {name} |" in section
     assert "chosen from the data" in section
     assert "(s)" not in page.split("## The shape of the data")[1].split("## Regions")[0]
+
+
+def test_settings_sentence_says_which_rule_gave_the_interval_count():
+    # UCI Wine (scikit-learn's copy, standardised): too sparse for the scale rule of
+    # Carrière, Michel and Oudot (2018), so the count is the Freedman-Diaconis one.
+    from sklearn.datasets import load_wine
+    from sklearn.preprocessing import StandardScaler
+
+    from topoaudit.bundle.records import ShapeRecord
+    from topoaudit.mapper.graph import MapperBuilder
+    from topoaudit.report.page import _settings_sentence
+
+    X = StandardScaler().fit_transform(load_wine().data)
+    builder = MapperBuilder(filter="pca").fit(X)
+    shape = ShapeRecord(
+        chosen=builder.auto_.as_dict(),
+        n_intervals=builder.n_intervals_,
+        overlap=builder.overlap_,
+        resamples=0,
+        resample_rows=0,
+        features=(),
+    )
+    config = {"graph": {"n_intervals": "auto", "clusterer": "auto"}}
+    text = _settings_sentence(shape, config, X.shape[0])
+    assert "too sparse for the rule to resolve any shape" in text
+    assert "Freedman and Diaconis (1981) bin count" in text
+    assert "which gives 6 intervals overlapping by 40%" in text
+    assert "interval length of" not in text

@@ -663,7 +663,16 @@ def _settings_sentence(shape: ShapeRecord, config: dict[str, Any], rows: int) ->
         + f" lie from the nearest of {count(chosen['subsample_rows'])} of them drawn at "
         f"random, averaged over {plural(chosen['n_subsamples'], 'draw')})"
     ]
-    if given["n_intervals"] == "auto":
+    if given["n_intervals"] == "auto" and chosen.get("resolution", ["scale"])[0] == "histogram":
+        parts.append(
+            "the filter's change between rows within that scale "
+            f"({chosen['filter_spread'][0]:.3g}) divided by the overlap {chosen['gain'][0]:g} "
+            "spans the filter's whole range, so the rows are too sparse for the rule to "
+            "resolve any shape; the number of intervals is instead the Freedman and "
+            "Diaconis (1981) bin count of the filter's values, the finest histogram of "
+            "these rows that is still stable"
+        )
+    elif given["n_intervals"] == "auto":
         parts.append(
             f"an interval length of {chosen['interval_length'][0]:.3g}: the filter's "
             + ("largest" if quantile >= 1 else f"{quantile * 100:g}th-percentile")
