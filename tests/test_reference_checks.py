@@ -38,6 +38,7 @@ from topoaudit.errors import UnknownNameError
 from topoaudit.mapper.graph import MapperBuilder
 from topoaudit.mapper.topology import invariants
 
+
 @pytest.mark.parametrize("case", CASES, ids=[c.name for c in CASES])
 def test_case_passes_at_settings_chosen_from_the_data(case):
     result = run_auto(case)
