@@ -400,3 +400,23 @@ def test_make_clusterer_rejects_an_object_without_fit_predict():
 def test_clusterers_reject_parameters_outside_their_range(clusterer, fragment):
     with pytest.raises(ParameterError, match=re.escape(fragment)):
         clusterer.fit_predict(np.zeros((10, 2)))
+
+
+def test_mesh_of_a_large_element_is_scikit_learns_bisecting_kmeans():
+    # Reference: scikit-learn's BisectingKMeans (Steinbach, Karypis and Kumar, 2000) at
+    # the same k, strategy and seed; an element at the threshold keeps Lloyd's KMeans.
+    from sklearn.cluster import BisectingKMeans
+
+    from topoaudit.mapper.clustering import KMeansMesh
+
+    X = np.random.default_rng(3).normal(size=(3000, 4))
+    mesh = KMeansMesh(node_rows=100, bisect_above=2999, random_state=5)
+    expected = BisectingKMeans(
+        n_clusters=30, bisecting_strategy="largest_cluster", random_state=5
+    ).fit_predict(X)
+    got = mesh.fit_predict(X)
+    assert np.array_equal(got, expected)
+    sizes = np.bincount(got)
+    assert sizes.size == 30 and 50 <= np.median(sizes) <= 150
+    lloyd = KMeansMesh(node_rows=100, bisect_above=3000, random_state=5).fit_predict(X)
+    assert np.array_equal(lloyd, KMeans(n_clusters=30, n_init=2, random_state=5).fit_predict(X))
