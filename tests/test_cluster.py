@@ -197,6 +197,18 @@ def test_tasks_come_back_in_order_and_the_shared_array_travels_once(cluster):
         assert _arrays_held(executor) == arrays  # the same array is not sent again
 
 
+def test_each_task_runs_with_the_allocator_thresholds_raised(cluster):
+    # Dask's nanny starts workers with MALLOC_TRIM_THRESHOLD_=65536 (its documented
+    # distributed.nanny.pre-spawn-environ); every task first raises glibc's thresholds
+    # (mallopt returned success) in the worker process it runs in.
+    from topoaudit.mapper import dask_executor
+
+    with DaskExecutor(cluster.address) as executor:
+        assert executor.map(os.getenv, [("MALLOC_TRIM_THRESHOLD_",)] * 2) == ["65536"] * 2
+        states = executor.map(getattr, [(dask_executor, "_ROOMY")] * 6)
+    assert states == [[True]] * 6
+
+
 def _arrays_held(executor: DaskExecutor) -> dict[str, list[str]]:
     """The arrays sent to each worker (scatter names them ndarray-<id>)."""
     held = executor.connect().has_what()

@@ -19,6 +19,18 @@ transient fault such as a full disk on one machine), then its error is raised he
 workers must run the same topoaudit (and numpy, scikit-learn) as the client: a task is a
 function of this package, sent by name.
 
+**The workers' memory allocator.** Dask's nanny starts each worker with
+``MALLOC_TRIM_THRESHOLD_=65536`` (its ``distributed.nanny.pre-spawn-environ``), so that
+glibc gives freed memory back to the system at once. Setting it also fixes glibc's mmap
+threshold at 128 KiB, and the audit's tasks allocate many arrays of a few hundred KiB
+to a few MiB: each is then mapped and unmapped afresh, and the page faults took 40% more
+time per task than in a plain process (measured on 2 cores: the same task of matrix
+products 4.0 s on a nanny's worker, 2.9 s in a plain process, 3.0 s with both thresholds
+raised). Each task therefore first raises, once per worker process, glibc's mmap
+threshold to 32 MiB and its trim threshold to 256 MiB (``mallopt``; nothing is done
+where the C library has no ``mallopt``). Freed memory below 256 MiB at the top of a
+worker's heap is then kept for reuse instead of returned at once.
+
 The client, the scheduler and the workers are Dask's; this module only names them and
 turns their failures into :class:`~topoaudit.errors.ClusterError`, whose message names
 the scheduler's address. ``distributed`` is imported only when a cluster is used.
@@ -38,7 +50,7 @@ import numpy as np
 from topoaudit._validation import SCHEDULER_ADDRESS, is_scheduler_address
 from topoaudit.errors import ClusterError, ParameterError
 
-__all__ = ["CONNECT_TIMEOUT_S", "NO_WORKERS_S", "DaskExecutor"]
+__all__ = ["CONNECT_TIMEOUT_S", "NO_WORKERS_S", "DaskExecutor", "roomy_malloc"]
 
 #: seconds to wait for a scheduler to answer before giving up
 CONNECT_TIMEOUT_S = 10.0
@@ -82,6 +94,36 @@ def _lost_errors() -> tuple[type[BaseException], ...]:
     from distributed.scheduler import KilledWorker
 
     return (KilledWorker, CancelledError, ClosedClientError, CommClosedError)
+
+
+#: glibc's ``mallopt`` parameters (malloc.h) and the values each worker takes
+_M_TRIM_THRESHOLD, _M_MMAP_THRESHOLD = -1, -3
+_MMAP_THRESHOLD = 32 * 2**20
+_TRIM_THRESHOLD = 256 * 2**20
+_ROOMY: list[bool] = []
+
+
+def roomy_malloc() -> bool:
+    """Raise glibc's mmap and trim thresholds in this process (see the module docstring),
+    once; True when they were set (or had been), False where there is no ``mallopt``."""
+    if not _ROOMY:
+        import ctypes
+        import ctypes.util
+
+        done = False
+        with contextlib.suppress(OSError, AttributeError, TypeError):
+            libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
+            done = bool(libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD)) and bool(
+                libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD)
+            )
+        _ROOMY.append(done)
+    return _ROOMY[0]
+
+
+def _in_worker(function: Callable[..., Any], *args: Any) -> Any:
+    """A task as it runs on a worker: the allocator set once, then ``function(*args)``."""
+    roomy_malloc()
+    return function(*args)
 
 
 def _close(client: Any) -> None:
@@ -194,6 +236,7 @@ class DaskExecutor:
         rank = np.argsort(np.argsort(weights, kind="stable")) if weights is not None else None
         futures = [
             client.submit(
+                _in_worker,
                 function,
                 *args,
                 key=f"{name}-{token}-{i}",
