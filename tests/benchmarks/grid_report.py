@@ -54,6 +54,32 @@ def _nulls(results: list[dict[str, Any]]) -> list[str]:
             f"{rate:.3f}.", ""]  # fmt: skip
 
 
+def _before_after(
+    before: list[dict[str, Any]], after: list[dict[str, Any]], label: str
+) -> list[str]:
+    """topoaudit's recall per family and its null findings, in an earlier run of the grid
+    (``before``, the same settings) and in this one."""
+    old, new = _pockets(before), _pockets(after)
+    old, new = old[old.method == "ours"], new[new.method == "ours"]
+    by_old = old.groupby("family")["recovered"].mean()
+    by_new = new.groupby("family")["recovered"].mean()
+    lines = [f"### Before and after: {label}", "", "| family | pockets | before | after |",
+             "|---|---|---|---|"]  # fmt: skip
+    for family in by_new.index:
+        n = int((new.family == family).sum())
+        lines.append(f"| {family} | {n} | {by_old.get(family, float('nan')):.2f} | "
+                     f"{by_new[family]:.2f} |")  # fmt: skip
+    lines.append(f"| all | {len(new)} | {old.recovered.mean():.2f} | {new.recovered.mean():.2f} |")
+    nulls = [sum(r["ours"]["found"] > 0 for r in rs if r["size"] == 0.0) for rs in (before, after)]
+    n_null = sum(r["size"] == 0.0 for r in after)
+    lines += [
+        "",
+        f"Null settings with a finding: {nulls[0]} before, {nulls[1]} after, of {n_null}.",
+        "",
+    ]
+    return lines
+
+
 def _charts(frame: pd.DataFrame, folder: Path) -> list[str]:
     import altair as alt
     import vl_convert as vlc
@@ -82,7 +108,14 @@ def _charts(frame: pd.DataFrame, folder: Path) -> list[str]:
 
 
 def write_report(
-    results: list[dict[str, Any]], path: Path, folder: Path, *, wall_seconds: float, jobs: int
+    results: list[dict[str, Any]],
+    path: Path,
+    folder: Path,
+    *,
+    wall_seconds: float,
+    jobs: int,
+    before: list[dict[str, Any]] | None = None,
+    before_label: str = "",
 ) -> None:
     frame = _pockets(results)
     planted = [r for r in results if r["size"] > 0]
@@ -106,6 +139,7 @@ def write_report(
         f"grid's wall time was {wall_seconds / 60:.0f} min with {jobs} settings at once.",
         "",
         *_table(frame, "family", "family"),
+        *(_before_after(before, results, before_label) if before else []),
         *_table(frame, "size", "size"),
         *_table(frame, "strength", "strength"),
         *_nulls(results),
