@@ -30,6 +30,7 @@ from scipy import stats as _st
 from topoaudit.audit.stats import (
     PairedTest,
     benjamini_hochberg,
+    benjamini_hochberg_present,
     delong_test,
     mcnemar_exact,
     paired_mean_test,
@@ -192,9 +193,8 @@ def _adjusted(
 ) -> list[ScoreChange]:
     """Records of ``tests`` (the first the whole), BH-adjusted across the others; a
     change of sign ``worse_sign`` is "worse"."""
-    done = [i for i, t in enumerate(tests) if isinstance(t, PairedTest) and i > 0]
-    adjusted = dict(
-        zip(done, benjamini_hochberg([tests[i].p_value for i in done]).tolist(), strict=True)
+    adjusted = benjamini_hochberg_present(
+        [t.p_value if isinstance(t, PairedTest) and i > 0 else None for i, t in enumerate(tests)]
     )
     out = []
     for i, t in enumerate(tests):

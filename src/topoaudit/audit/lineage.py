@@ -51,7 +51,7 @@ from pathlib import Path
 import numpy as np
 
 from topoaudit.audit.stats import (
-    benjamini_hochberg,
+    benjamini_hochberg_present,
     binomial_lower_test,
     binomial_upper_test,
     permutation_upper_test,
@@ -305,15 +305,6 @@ def _match(
     return out
 
 
-def _adjusted(p: list[float | None]) -> list[float | None]:
-    idx = [i for i, v in enumerate(p) if v is not None]
-    out: list[float | None] = [None] * len(p)
-    if idx:
-        for i, q in zip(idx, benjamini_hochberg([p[i] for i in idx]), strict=True):
-            out[i] = float(q)
-    return out
-
-
 def _fates(prev: ReleaseRows, rel: ReleaseRows, followed, matched, fdr: float) -> list[Fate]:
     """Fates of ``prev``'s weak regions under ``rel``; ``followed``: tracked id ->
     (``prev``'s own id, its rows on ``rel`` or None)."""
@@ -326,7 +317,9 @@ def _fates(prev: ReleaseRows, rel: ReleaseRows, followed, matched, fdr: float) -
         if ex_a is not None and ex_b is not None and ex_a.rows:
             tests = change_tests(ex_b, ex_a, prev, rel, (m_prev, m_here))
         rows.append((t, local, ex_b, ex_a, ex_a.p_value if ex_a else None, *tests))
-    q_still, q_worse, q_better = (_adjusted([r[i] for r in rows]) for i in (4, 5, 6))
+    q_still, q_worse, q_better = (
+        benjamini_hochberg_present([r[i] for r in rows]) for i in (4, 5, 6)
+    )
     after_ids = {t: w for w, (t, _j) in matched.items()}
     out = []
     for k, (t, local, ex_b, ex_a, _p, p_worse, p_better) in enumerate(rows):
@@ -361,7 +354,7 @@ def _origins(
     for w, t in new.items():
         m_prev = back(rel.weak[w], prev, rel)
         tested.append((w, t, excess(prev, m_prev) if m_prev is not None else None))
-    q = _adjusted([e.p_value if e is not None else None for _w, _t, e in tested])
+    q = benjamini_hochberg_present([e.p_value if e is not None else None for _w, _t, e in tested])
     out = []
     for k, (w, t, e) in enumerate(tested):
         origin = "missed before" if q[k] is not None and q[k] <= fdr else "introduced"

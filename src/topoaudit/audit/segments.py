@@ -28,7 +28,7 @@ from collections.abc import Callable
 import numpy as np
 import pandas as pd
 
-from topoaudit.audit.stats import benjamini_hochberg
+from topoaudit.audit.stats import benjamini_hochberg_present
 from topoaudit.bundle.records import Metrics, Segment, SegmentLevel
 
 __all__ = ["TESTS", "declared_segments", "level_p_value"]
@@ -135,10 +135,13 @@ def declared_segments(
         values = segments[col].cat
         levels = _levels(values.codes.to_numpy(), list(values.categories), loss, metrics, counts)
         columns.append(levels)
-    tested = [(i, j) for i, ls in enumerate(columns) for j, lv in enumerate(ls) if not lv.note]
-    adjusted = benjamini_hochberg([columns[i][j].p_value for i, j in tested])
-    for (i, j), adj in zip(tested, adjusted, strict=True):
-        columns[i][j] = _judged(columns[i][j], adj, fdr)
+    cells = [(i, j) for i, ls in enumerate(columns) for j in range(len(ls))]
+    adjusted = benjamini_hochberg_present(
+        [None if columns[i][j].note else columns[i][j].p_value for i, j in cells]
+    )
+    for (i, j), adj in zip(cells, adjusted, strict=True):
+        if adj is not None:
+            columns[i][j] = _judged(columns[i][j], adj, fdr)
     return tuple(
         Segment(column=str(col), test=TESTS[counts], levels=tuple(ls))
         for col, ls in zip(segments.columns, columns, strict=True)

@@ -151,6 +151,23 @@ def benjamini_hochberg(p_values: Sequence[float]) -> np.ndarray:
     return out
 
 
+def benjamini_hochberg_present(p_values: Sequence[float | None]) -> list[float | None]:
+    """:func:`benjamini_hochberg` across the p-values that are there; None (not tested)
+    stays None and does not count among the hypotheses.
+
+    Examples
+    --------
+    >>> benjamini_hochberg_present([0.01, None, 0.04, 0.03, 0.5])
+    [0.04, None, 0.05333333333333334, 0.05333333333333334, 0.5]
+    """
+    present = [i for i, v in enumerate(p_values) if v is not None]
+    out: list[float | None] = [None] * len(p_values)
+    adjusted = benjamini_hochberg([float(p_values[i]) for i in present])  # type: ignore[arg-type]
+    for i, q in zip(present, adjusted.tolist(), strict=True):
+        out[i] = float(q)
+    return out
+
+
 def mcnemar_exact(b: int, c: int) -> float:
     """Two-sided exact McNemar p-value (McNemar, 1947) from the discordant counts.
 
