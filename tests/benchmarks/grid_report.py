@@ -54,27 +54,30 @@ def _nulls(results: list[dict[str, Any]]) -> list[str]:
             f"{rate:.3f}.", ""]  # fmt: skip
 
 
-def _before_after(
-    before: list[dict[str, Any]], after: list[dict[str, Any]], label: str
-) -> list[str]:
-    """topoaudit's recall per family and its null findings, in an earlier run of the grid
-    (``before``, the same settings) and in this one."""
-    old, new = _pockets(before), _pockets(after)
+def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label: str) -> list[str]:
+    """topoaudit's recall per family and its null findings in another run of the grid
+    (``other``, labelled ``label``) and in this one, over the settings both ran."""
+    key = lambda r: (r["family"], r["size"], r["strength"], r["rows"], r["features"], r["seed"])  # noqa: E731
+    both = {key(r) for r in other} & {key(r) for r in results}
+    mine = [r for r in results if key(r) in both]
+    theirs = [r for r in other if key(r) in both]
+    old, new = _pockets(theirs), _pockets(mine)
     old, new = old[old.method == "ours"], new[new.method == "ours"]
     by_old = old.groupby("family")["recovered"].mean()
     by_new = new.groupby("family")["recovered"].mean()
-    lines = [f"### Before and after: {label}", "", "| family | pockets | before | after |",
-             "|---|---|---|---|"]  # fmt: skip
+    lines = [f"### This run against {label}", "",
+             f"Over the {len(both)} settings both ran.", "",
+             "| family | pockets | that run | this run |", "|---|---|---|---|"]  # fmt: skip
     for family in by_new.index:
         n = int((new.family == family).sum())
-        lines.append(f"| {family} | {n} | {by_old.get(family, float('nan')):.2f} | "
-                     f"{by_new[family]:.2f} |")  # fmt: skip
+        lines.append(f"| {family} | {n} | {by_old[family]:.2f} | {by_new[family]:.2f} |")
     lines.append(f"| all | {len(new)} | {old.recovered.mean():.2f} | {new.recovered.mean():.2f} |")
-    nulls = [sum(r["ours"]["found"] > 0 for r in rs if r["size"] == 0.0) for rs in (before, after)]
-    n_null = sum(r["size"] == 0.0 for r in after)
+    nulls = [sum(r["ours"]["found"] > 0 for r in rs if r["size"] == 0.0) for rs in (theirs, mine)]
+    n_null = sum(r["size"] == 0.0 for r in mine)
     lines += [
         "",
-        f"Null settings with a finding: {nulls[0]} before, {nulls[1]} after, of {n_null}.",
+        f"Null settings with a finding: {nulls[0]} in that run, {nulls[1]} in this one, "
+        f"of {n_null}.",
         "",
     ]
     return lines
@@ -114,8 +117,8 @@ def write_report(
     *,
     wall_seconds: float,
     jobs: int,
-    before: list[dict[str, Any]] | None = None,
-    before_label: str = "",
+    other: list[dict[str, Any]] | None = None,
+    other_label: str = "",
 ) -> None:
     frame = _pockets(results)
     planted = [r for r in results if r["size"] > 0]
@@ -139,7 +142,7 @@ def write_report(
         f"grid's wall time was {wall_seconds / 60:.0f} min with {jobs} settings at once.",
         "",
         *_table(frame, "family", "family"),
-        *(_before_after(before, results, before_label) if before else []),
+        *(_compared(other, results, other_label) if other else []),
         *_table(frame, "size", "size"),
         *_table(frame, "strength", "strength"),
         *_nulls(results),

@@ -25,21 +25,7 @@ The lens is made in three steps, all from discovery labels only:
    among those; kept features get weight 1, the others 0 (all features, if none is kept);
 2. in that weighted space, each row's lens value is the mean excess of its ``k`` nearest
    discovery rows, itself excluded (a nearest-neighbour smoother);
-3. the smoother's neighbourhoods are then shaped by the lens itself, ``refine`` times
-   (two by default): the outer product of the lens's gradients (OPG; Xia, Tong, Li and
-   Zhu, "An adaptive estimation of dimension reduction space", JRSS B 64(3), 2002),
-   estimated by local linear fits of the lens over the ``k`` nearest discovery rows of
-   2,000 seeded discovery rows, is ``M = V diag(λ) Vᵀ``; the kept columns are mapped by
-   ``V diag(sqrt(λ / λ₁))`` and the smoother runs again there. Directions along which the
-   excess changes keep their length; directions along which it does not shrink, so a
-   row's neighbours are the rows at the same place along the first and anywhere along the
-   second. A pocket that is thin along a direction mixing several features (a slab across
-   three of them) is blurred by a round neighbourhood to several times its width; in the
-   shaped one its rows' neighbours are mostly its own rows. Measured on a planted slab of
-   10% of 20,000 rows across three of 12 features, six times the error outside: best
-   Jaccard index of a confirmed region with the slab 0.20 with round neighbourhoods, 0.89
-   after one shaping and 0.93 after two;
-4. confirmation rows get the same smoother over discovery rows, so no confirmation label
+3. confirmation rows get the same smoother over discovery rows, so no confirmation label
    ever shapes the graph, and the confirmation test stays a test on fresh rows.
 
 Both graphs use :class:`~topoaudit.mapper.clustering.KMeansMesh` inside each cover
@@ -68,7 +54,6 @@ __all__ = [
     "SearchGraph",
     "SearchSettings",
     "error_lens",
-    "gradient_shape",
     "kept_features",
     "permutation_drops",
     "relevance_weights",
@@ -92,8 +77,6 @@ class SearchSettings:
     folds: int = 5
     neighbours: int | None = None
     lens_clusterer: str = "single_linkage"
-    refine: int = 2
-    refine_rows: int = 2000
 
     def k(self, n_discovery: int) -> int:
         """Neighbours of the smoother: given, or ``n_discovery / 50`` within [30, 300]."""
@@ -295,66 +278,7 @@ def error_lens(
     Z = np.ascontiguousarray(X[:, weights > 0])
     k = settings.k(int(discovery.sum()))
     values = smoothed_excess(Z, total, discovery, k, executor=executor)
-    for step in range(settings.refine if Z.shape[1] > 1 else 0):
-        shape = gradient_shape(
-            Z, values, discovery, k, rows=settings.refine_rows, random_state=random_state + step
-        )
-        if shape is None:
-            break
-        values = smoothed_excess(Z @ shape, total, discovery, k, executor=executor)
     return ErrorLens(weights, importance, values)
-
-
-def gradient_shape(
-    Z: np.ndarray,
-    values: np.ndarray,
-    discovery: np.ndarray,
-    k: int,
-    *,
-    rows: int = 2000,
-    random_state: int = 0,
-) -> np.ndarray | None:
-    """The map ``V diag(sqrt(λ / λ₁))`` of step 3 (module docstring), from the outer
-    product of the gradients of ``values``; None when they have no gradient.
-
-    Each gradient is the slope of a least-squares plane through the ``values`` of the
-    ``k`` nearest discovery rows of one of ``rows`` seeded discovery rows (an intercept and
-    one slope per column). Cost: one neighbour query and one small solve per sampled row.
-
-    Examples
-    --------
-    A lens that changes along ``x + y`` and not along ``x - y``: the map keeps the first
-    direction and shrinks the second to almost nothing (the local planes through a curved
-    lens leave a small slope across it).
-
-    >>> rng = np.random.default_rng(0)
-    >>> Z = rng.normal(size=(3000, 2))
-    >>> shape = gradient_shape(Z, np.sin(Z.sum(axis=1)), np.ones(3000, bool), 50)
-    >>> v = shape[:, 0] / np.linalg.norm(shape[:, 0])
-    >>> round(float(abs(v @ [0.5**0.5, 0.5**0.5])), 3), float(np.linalg.norm(shape[:, 1])) < 0.05
-    (1.0, True)
-    """
-    d = np.flatnonzero(discovery)
-    k = int(min(k, d.size - 1))
-    p = Z.shape[1]
-    if k <= p + 1:
-        return None
-    rng = np.random.default_rng([random_state, 47])
-    picked = np.sort(rng.choice(d, size=min(rows, d.size), replace=False))
-    with threadpool_limits(limits=1):
-        nn = NearestNeighbors(n_neighbors=k, algorithm="auto" if p <= 8 else "brute").fit(Z[d])
-        idx = d[nn.kneighbors(Z[picked], return_distance=False)]
-    D = Z[idx] - Z[picked][:, None, :]  # (rows, k, p)
-    D -= D.mean(axis=1, keepdims=True)
-    y = values[idx] - values[idx].mean(axis=1, keepdims=True)
-    gram = np.einsum("rki,rkj->rij", D, D)
-    gram += 1e-9 * np.trace(gram, axis1=1, axis2=2)[:, None, None] * np.eye(p)
-    grads = np.linalg.solve(gram, np.einsum("rki,rk->ri", D, y)[..., None])[..., 0]
-    lam, V = np.linalg.eigh(grads.T @ grads / grads.shape[0])
-    lam, V = np.clip(lam[::-1], 0.0, None), V[:, ::-1]
-    if not lam[0] > 0:
-        return None
-    return np.ascontiguousarray(V * np.sqrt(lam / lam[0]))
 
 
 def search_graphs(
