@@ -77,7 +77,9 @@ def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label:
     lines += [
         "",
         f"Null settings with a finding: {nulls[0]} in that run, {nulls[1]} in this one, "
-        f"of {n_null}.",
+        f"of {n_null}."
+        if n_null
+        else "No null setting is among them.",
         "",
     ]
     return lines
