@@ -268,7 +268,7 @@ def test_the_audit_runs_its_tasks_where_the_compute_section_says(
     monkeypatch, compute, cores, rows, expected
 ):
     # reference: the rule ComputeSettings documents (common practice, no source)
-    monkeypatch.setattr(run_module, "_usable_cores", lambda: cores)
+    monkeypatch.setattr(run_module, "usable_cores", lambda: cores)
     config = parse_config(
         {
             "model": "m",

@@ -14,7 +14,6 @@ loop) are at the end.
 
 from __future__ import annotations
 
-import os
 import time
 
 import gudhi
@@ -24,7 +23,7 @@ import numpy as np
 import pytest
 
 from topoaudit.errors import ParameterError
-from topoaudit.mapper.executor import ProcessExecutor
+from topoaudit.mapper.executor import ProcessExecutor, usable_cores
 from topoaudit.mapper.features import (
     bottleneck_distance,
     feature_confidence,
@@ -281,7 +280,7 @@ SURE = 0.95
 
 
 def _executor():
-    cores = len(os.sched_getaffinity(0))
+    cores = usable_cores()
     return ProcessExecutor(min(4, cores)) if cores > 1 else None
 
 

@@ -10,7 +10,6 @@ classification audit and a regression audit differ, the step asks the
 from __future__ import annotations
 
 import dataclasses
-import os
 import platform
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -45,7 +44,7 @@ from topoaudit.bundle import records as rec
 from topoaudit.bundle.files import build_date, write_bundle
 from topoaudit.config import Config, GraphSettings, Release
 from topoaudit.data import Dataset, load_dataset
-from topoaudit.mapper.executor import make_executor, map_shared, open_executor
+from topoaudit.mapper.executor import make_executor, map_shared, open_executor, usable_cores
 from topoaudit.mapper.features import feature_confidence
 from topoaudit.mapper.graph import MapperBuilder, MapperGraph
 from topoaudit.mapper.topology import invariants
@@ -677,13 +676,6 @@ def drift_record(placed: Placed | None) -> rec.Drift | None:
     )
 
 
-def _usable_cores() -> int:
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return os.cpu_count() or 1
-
-
 def executor_spec(config: Config, n_rows: int) -> Any:
     """Where an audit of ``n_rows`` rows runs its tasks, as
     :func:`~topoaudit.mapper.executor.make_executor` takes it: the ``[compute]``
@@ -693,7 +685,7 @@ def executor_spec(config: Config, n_rows: int) -> Any:
     if compute.scheduler is not None:
         return compute.scheduler
     if compute.workers == "auto":
-        cores = _usable_cores()
+        cores = usable_cores()
         return cores if cores > 1 and n_rows >= PROCESS_ROWS else None
     return compute.workers
 

@@ -42,6 +42,7 @@ __all__ = [
     "map_shared",
     "map_tasks",
     "open_executor",
+    "usable_cores",
 ]
 
 _THREAD_VARIABLES = (
@@ -67,6 +68,14 @@ class Executor(Protocol):
     def map(self, function: Callable[..., Any], tasks: Sequence[tuple[Any, ...]]) -> list[Any]:
         """Apply ``function(*task)`` to every task; results in task order."""
         ...
+
+
+def usable_cores() -> int:
+    """The cores this process may run on (its CPU affinity where the system has one)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return os.cpu_count() or 1
 
 
 class SerialExecutor:
@@ -185,11 +194,7 @@ class ProcessExecutor:
     @property
     def threads_per_worker(self) -> int:
         """BLAS and OpenMP threads each worker may use."""
-        try:
-            cores = len(os.sched_getaffinity(0))
-        except AttributeError:  # pragma: no cover - not on Linux
-            cores = os.cpu_count() or 1
-        return max(1, cores // self.n_jobs)
+        return max(1, usable_cores() // self.n_jobs)
 
     def _executor(self) -> Any:
         from joblib.externals.loky import get_reusable_executor
