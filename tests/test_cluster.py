@@ -199,14 +199,16 @@ def test_tasks_come_back_in_order_and_the_shared_array_travels_once(cluster):
 
 def test_each_task_runs_with_the_allocator_thresholds_raised(cluster):
     # Dask's nanny starts workers with MALLOC_TRIM_THRESHOLD_=65536 (its documented
-    # distributed.nanny.pre-spawn-environ); every task first raises glibc's thresholds
-    # (mallopt returned success) in the worker process it runs in.
-    from topoaudit.mapper import dask_executor
+    # distributed.nanny.pre-spawn-environ); every task first raises glibc's thresholds in
+    # the worker process it runs in, once per process (one cached call), and mallopt
+    # returned success.
+    from topoaudit.mapper.dask_executor import roomy_malloc
 
     with DaskExecutor(cluster.address) as executor:
         assert executor.map(os.getenv, [("MALLOC_TRIM_THRESHOLD_",)] * 2) == ["65536"] * 2
-        states = executor.map(getattr, [(dask_executor, "_ROOMY")] * 6)
-    assert states == [[True]] * 6
+        seen = executor.map(operator.methodcaller("cache_info"), [(roomy_malloc,)] * 6)
+        assert executor.map(roomy_malloc, [()] * 6) == [True] * 6
+    assert all(info.misses == 1 and info.currsize == 1 for info in seen), seen
 
 
 def _arrays_held(executor: DaskExecutor) -> dict[str, list[str]]:

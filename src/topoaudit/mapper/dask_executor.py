@@ -39,6 +39,7 @@ the scheduler's address. ``distributed`` is imported only when a cluster is used
 from __future__ import annotations
 
 import contextlib
+import functools
 import time
 import uuid
 import weakref
@@ -100,24 +101,21 @@ def _lost_errors() -> tuple[type[BaseException], ...]:
 _M_TRIM_THRESHOLD, _M_MMAP_THRESHOLD = -1, -3
 _MMAP_THRESHOLD = 32 * 2**20
 _TRIM_THRESHOLD = 256 * 2**20
-_ROOMY: list[bool] = []
 
 
+@functools.cache
 def roomy_malloc() -> bool:
     """Raise glibc's mmap and trim thresholds in this process (see the module docstring),
-    once; True when they were set (or had been), False where there is no ``mallopt``."""
-    if not _ROOMY:
-        import ctypes
-        import ctypes.util
+    once; True when they were set, False where there is no ``mallopt``."""
+    import ctypes
+    import ctypes.util
 
-        done = False
-        with contextlib.suppress(OSError, AttributeError, TypeError):
-            libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
-            done = bool(libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD)) and bool(
-                libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD)
-            )
-        _ROOMY.append(done)
-    return _ROOMY[0]
+    with contextlib.suppress(OSError, AttributeError, TypeError):
+        libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
+        return bool(libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD)) and bool(
+            libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD)
+        )
+    return False
 
 
 def _in_worker(function: Callable[..., Any], *args: Any) -> Any:

@@ -108,10 +108,8 @@ def _lineage_table(lineage: Lineage) -> list[str]:
             origin = next((o for o in step.origins if o.tracked == tid), None)
             if origin is not None and origin.origin == "returned":
                 events.append(f"{escape(step.after)}: returned")
-            elif fate is not None and fate.after_id is None:
+            elif fate is not None and (fate.after_id is None or fate.fate == "worse"):
                 events.append(f"{escape(step.after)}: {fate.fate}")
-            elif fate is not None and fate.fate == "worse":
-                events.append(f"{escape(step.after)}: worse")
         weak_in = join_words([escape(r) for r in t.weak_in])
         lines.append(
             f"| {tid} | {escape(t.found_in)} | {weak_in} | "
