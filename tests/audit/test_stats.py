@@ -20,6 +20,7 @@ from topoaudit.audit.stats import (
     bootstrap_interval,
     mcnemar_exact,
     permutation_upper_test,
+    poisson_lower_bound,
     wilson_interval,
 )
 from topoaudit.errors import ParameterError
@@ -301,3 +302,22 @@ def test_bootstrap_interval_uses_the_defined_resamples_when_half_are_defined() -
         return 1.0 if calls["n"] % 2 == 0 else float("nan")
 
     assert bootstrap_interval(defined_every_other, 10, n_resamples=100) == (1.0, 1.0)
+
+
+@pytest.mark.parametrize("count", [1, 2, 5, 10, 37, 400])
+def test_poisson_lower_bound_is_where_the_upper_tail_is_five_percent(count: int) -> None:
+    # Garwood (1936): the one-sided lower bound mu solves P(X >= count | mu) = 0.05;
+    # checked against scipy's Poisson distribution
+    mu = poisson_lower_bound(count)
+    assert st.poisson.sf(count - 1, mu) == pytest.approx(0.05, rel=1e-9)
+
+
+def test_poisson_lower_bound_of_one_event_in_closed_form() -> None:
+    # 1 - exp(-mu) = 0.05 (common practice, no source)
+    assert poisson_lower_bound(1) == pytest.approx(-math.log(0.95), rel=1e-12)
+    assert poisson_lower_bound(0) == 0.0
+
+
+def test_poisson_lower_bound_refuses_a_negative_count() -> None:
+    with pytest.raises(ParameterError, match="count >= 0"):
+        poisson_lower_bound(-1)

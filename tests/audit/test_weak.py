@@ -144,3 +144,41 @@ def test_the_rescaling_factor_by_hand():
     assert rescaling_factor(loss, half) == pytest.approx(3.0)
     nothing_promised = Losses("error", np.ones(2), np.zeros(2))
     assert np.isnan(rescaling_factor(nothing_promised, np.ones(2, dtype=bool)))
+
+
+def _confirmed(rows: np.ndarray, observed: int, expected: float, p: float, graph="g"):
+    from topoaudit.audit.weak import CandidateRegion, HalfEstimate
+
+    half = HalfEstimate.of(int(rows.size), float(observed), float(expected))
+    return CandidateRegion(
+        graph=graph, kind="error", nodes=(0,), rows=rows, llr=1.0, discovery=half,
+        confirmation=half, tested=True, p_value=p, p_adjusted=p, confirmed=True,
+    )  # fmt: skip
+
+
+def test_a_repeat_is_named_by_its_most_concentrated_member_not_its_largest():
+    # A weak pocket of 600 rows erring at 0.8 where 0.2 is expected, seen twice: once
+    # tightly, once inside a region three times its size (the other rows as promised).
+    # Hand computation (common practice, no source): the large region has the smaller
+    # p-value but half the excess per row; the tight one carries all of its excess.
+    tight = _confirmed(np.arange(600), observed=480, expected=120.0, p=1e-40, graph="tight")
+    large = _confirmed(np.arange(1800), observed=720, expected=360.0, p=1e-45, graph="large")
+    merged = merge_confirmed([large, tight])
+    assert [m.graph for m in merged] == ["tight"]
+    assert merged[0].also_found == ("large/error",)
+
+
+def test_a_small_fragment_does_not_stand_for_the_region_it_lies_in():
+    # A 40-row fragment with a higher rate than its 600-row region carries far less than
+    # half of the region's excess, so the region stands (hand computation, no source).
+    whole = _confirmed(np.arange(600), observed=480, expected=120.0, p=1e-40, graph="whole")
+    fragment = _confirmed(np.arange(40), observed=40, expected=2.0, p=1e-20, graph="fragment")
+    merged = merge_confirmed([fragment, whole])
+    assert [m.graph for m in merged] == ["whole"]
+    assert merged[0].also_found == ("fragment/error",)
+
+
+def test_separate_regions_stay_separate_when_merged():
+    a = _confirmed(np.arange(0, 300), observed=200, expected=60.0, p=1e-20, graph="a")
+    b = _confirmed(np.arange(1000, 1300), observed=150, expected=60.0, p=1e-10, graph="b")
+    assert [m.graph for m in merge_confirmed([b, a])] == ["a", "b"]

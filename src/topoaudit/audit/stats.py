@@ -25,6 +25,7 @@ __all__ = [
     "mcnemar_exact",
     "paired_mean_test",
     "permutation_upper_test",
+    "poisson_lower_bound",
     "wilson_interval",
 ]
 
@@ -81,6 +82,24 @@ def binomial_upper_test(observed: int, n: int, share: float) -> float:
     if observed <= 0:
         return 1.0
     return float(_st.binom.sf(observed - 1, n, share))
+
+
+def poisson_lower_bound(count: float, confidence: float = 0.95) -> float:
+    """One-sided exact lower confidence bound of a Poisson mean from an observed count
+    (Garwood, 1936): ``chi2.ppf(1 - confidence, 2 count) / 2``, 0 for a count of 0.
+
+    Examples
+    --------
+    >>> round(poisson_lower_bound(1), 5)  # solves 1 - exp(-mu) = 0.05
+    0.05129
+    """
+    if not 0 < confidence < 1 or not count >= 0:
+        msg = (
+            "poisson_lower_bound needs a count >= 0 and a confidence in (0, 1); "
+            f"got count={count!r}, confidence={confidence!r}."
+        )
+        raise ParameterError(msg)
+    return float(_st.chi2.ppf(1 - confidence, 2 * count) / 2) if count > 0 else 0.0
 
 
 def binomial_lower_test(observed: int, n: int, share: float) -> float:

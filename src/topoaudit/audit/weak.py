@@ -48,7 +48,12 @@ from typing import Any
 
 import numpy as np
 
-from topoaudit.audit.stats import benjamini_hochberg, binomial_upper_test, permutation_upper_test
+from topoaudit.audit.stats import (
+    benjamini_hochberg,
+    binomial_upper_test,
+    permutation_upper_test,
+    poisson_lower_bound,
+)
 from topoaudit.bundle.records import HalfEstimate
 from topoaudit.mapper.graph import MapperGraph
 
@@ -476,24 +481,53 @@ def find_weak_regions(
     return out
 
 
+def _excess_bound(f: CandidateRegion) -> tuple[float, float]:
+    """The one-sided 95% lower bounds of a confirmed region's excess loss on the
+    confirmation half: in total and per row (observed count's Poisson bound, Garwood 1936,
+    minus the expected count). NaN for losses that are not counts."""
+    c = f.confirmation
+    if f.kind == "squared_error" or not c.rows:
+        return float("nan"), float("nan")
+    total = poisson_lower_bound(float(c.observed)) - float(c.expected)
+    return total, total / c.rows
+
+
 def merge_confirmed(
-    findings: Sequence[CandidateRegion], *, share: float = 0.5
+    findings: Sequence[CandidateRegion], *, share: float = 0.5, carry: float = 0.5
 ) -> list[CandidateRegion]:
-    """The confirmed findings with repeats merged: a finding that shares at least
-    ``share`` of the smaller row set with another is the same weak region; the one with
-    the smallest adjusted p-value (then the largest LLR) is kept and names the others in
-    ``also_found``."""
+    """The confirmed findings with repeats merged into one weak region each.
+
+    In order of adjusted p-value (then LLR), a finding that shares at least ``share`` of
+    the smaller row set with a group's first finding joins that group; otherwise it starts
+    one. The smallest p-value goes to the largest region, which may hold many rows that
+    are not weak, so each group is named by its most concentrated member: among the
+    members whose lower bound of excess in total is at least ``carry`` of the group's
+    largest (so a small fragment of a weak region does not stand for it), the one with
+    the largest lower bound of excess per row (see :func:`_excess_bound`). The others are
+    named in ``also_found``. For squared errors, the group's first finding stands.
+    """
     confirmed = sorted(
         (f for f in findings if f.confirmed), key=lambda f: (f.p_adjusted, -f.llr, f.graph, f.kind)
     )
-    kept: list[CandidateRegion] = []
+    groups: list[list[CandidateRegion]] = []
     for f in confirmed:
-        for i, k in enumerate(kept):
-            if _overlap(f.rows, k.rows) >= share:
-                label = f"{f.graph}/{f.kind}"
-                seen = k.also_found if label in k.also_found else (*k.also_found, label)
-                kept[i] = replace(k, also_found=seen)
-                break
+        group = next((g for g in groups if _overlap(f.rows, g[0].rows) >= share), None)
+        if group is None:
+            groups.append([f])
         else:
-            kept.append(f)
+            group.append(f)
+    kept = []
+    for group in groups:
+        bounds = [_excess_bound(f) for f in group]
+        top = max(b[0] for b in bounds)
+        best = group[0]
+        if np.isfinite(top):
+            eligible = [i for i, b in enumerate(bounds) if b[0] >= carry * top]
+            best = group[max(eligible, key=lambda i: (bounds[i][1], -i))]
+        labels: list[str] = list(best.also_found)
+        for f in group:
+            label = f"{f.graph}/{f.kind}"
+            if f is not best and label not in labels:
+                labels.append(label)
+        kept.append(replace(best, also_found=tuple(labels)))
     return kept
