@@ -54,6 +54,13 @@ def _nulls(results: list[dict[str, Any]]) -> list[str]:
             f"{rate:.3f}.", ""]  # fmt: skip
 
 
+def _precision(results: list[dict[str, Any]]) -> float:
+    """The share of topoaudit's confirmed regions with at least half of their rows in a
+    pocket, over the settings with pockets."""
+    precise = [p for r in results if r["size"] > 0 for p in r["ours"]["precise"]]
+    return sum(precise) / len(precise) if precise else float("nan")
+
+
 def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label: str) -> list[str]:
     """topoaudit's recall per family and its null findings in another run of the grid
     (``other``, labelled ``label``) and in this one, over the settings both ran."""
@@ -72,6 +79,8 @@ def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label:
         n = int((new.family == family).sum())
         lines.append(f"| {family} | {n} | {by_old[family]:.2f} | {by_new[family]:.2f} |")
     lines.append(f"| all | {len(new)} | {old.recovered.mean():.2f} | {new.recovered.mean():.2f} |")
+    precision = [_precision(rs) for rs in (theirs, mine)]
+    lines += ["", f"Precision: {precision[0]:.2f} in that run, {precision[1]:.2f} in this one."]
     nulls = [sum(r["ours"]["found"] > 0 for r in rs if r["size"] == 0.0) for rs in (theirs, mine)]
     n_null = sum(r["size"] == 0.0 for r in mine)
     lines += [
@@ -119,12 +128,13 @@ def write_report(
     *,
     wall_seconds: float,
     jobs: int,
-    other: list[dict[str, Any]] | None = None,
-    other_label: str = "",
+    others: list[tuple[list[dict[str, Any]], str]] = (),
 ) -> None:
+    """Write the report to ``path`` and its charts to ``folder``; ``others``: the results
+    and labels of other runs to compare with, over the settings each shares with this."""
     frame = _pockets(results)
     planted = [r for r in results if r["size"] > 0]
-    precise = [p for r in planted for p in r["ours"]["precise"]]
+    n_regions = sum(len(r["ours"]["precise"]) for r in planted)
     seconds = pd.Series([r["seconds"] for r in results])
     overall = frame.groupby("method")["recovered"].mean()
     lines = [
@@ -137,14 +147,14 @@ def write_report(
         "Recall over all pockets: "
         + ", ".join(f"{NAMES[m]} {overall[m]:.2f}" for m in METHODS)
         + ". "
-        f"Precision of topoaudit: {sum(precise) / len(precise):.2f} of {len(precise)} "
+        f"Precision of topoaudit: {_precision(results):.2f} of {n_regions} "
         "confirmed regions have at least half of their rows in a pocket. "
         f"topoaudit's search and confirmation took {seconds.median():.1f} s per setting "
         f"(median; {seconds.max():.0f} s at most), {seconds.sum() / 60:.0f} min in all; the "
         f"grid's wall time was {wall_seconds / 60:.0f} min with {jobs} settings at once.",
         "",
         *_table(frame, "family", "family"),
-        *(_compared(other, results, other_label) if other else []),
+        *[line for other, label in others for line in _compared(other, results, label)],
         *_table(frame, "size", "size"),
         *_table(frame, "strength", "strength"),
         *_nulls(results),
