@@ -41,6 +41,7 @@ bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.scale
 	$(BIN)/python -m tests.benchmarks.site
 	$(BIN)/python -m tests.benchmarks.grid
+	$(BIN)/python -m tests.benchmarks.grid_band
 
 # Rewrites the visual suite's spec snapshots, chart images and page screenshots; review
 # the changed files under tests/visual/baselines before committing them.

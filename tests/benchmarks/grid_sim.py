@@ -49,6 +49,8 @@ class Planted:
     score: np.ndarray
     pockets: tuple[np.ndarray, ...]
     threshold: float = 0.5
+    #: the band's mixing features and their unit weights (band family only)
+    band: tuple[np.ndarray, np.ndarray] | None = None
 
 
 def _quantile_window(x: np.ndarray, share: float, rng: np.random.Generator) -> np.ndarray:
@@ -69,13 +71,15 @@ def _arc(X, size, rng) -> list[np.ndarray]:
     return [d <= np.quantile(d, size)]
 
 
-def _band(X, size, rng) -> list[np.ndarray]:
+def _band(X, size, rng, out=None) -> list[np.ndarray]:
     k = int(rng.integers(3, 6))
     cols = rng.choice(X.shape[1], size=k, replace=False)
     w = rng.normal(size=k)
     proj = X[:, cols] @ (w / np.linalg.norm(w))
     centre = np.quantile(proj, rng.uniform(0.3, 0.7))
     dist = np.abs(proj - centre)
+    if out is not None:
+        out.append((cols, w / np.linalg.norm(w)))
     return [dist <= np.quantile(dist, size)]
 
 
@@ -121,11 +125,14 @@ def plant(
     rng = np.random.default_rng([seed, n_rows, n_features])
     X = rng.normal(size=(n_rows, n_features))
     pockets: list[np.ndarray] = []
+    band: list[tuple[np.ndarray, np.ndarray]] = []
     if family == "categorical":
         pockets, onehot = _categorical(X, size, rng)
         X = np.column_stack([X, onehot])
+    elif family == "band":
+        pockets = _band(X, size, rng, band)
     elif family in FAMILIES:
-        make = {"box": _box, "arc": _arc, "band": _band, "island": _island}
+        make = {"box": _box, "arc": _arc, "island": _island}
         make |= {"flare_tip": _flare_tip, "two_pockets": _two}
         pockets = make[family](X, size, rng)
     elif family not in NULLS:
@@ -142,4 +149,4 @@ def plant(
     decision = score >= 0.5
     wrong = rng.uniform(size=n_rows) < q
     y = np.where(wrong, ~decision, decision).astype(np.int64)
-    return Planted(X=X, y=y, score=score, pockets=tuple(pockets))
+    return Planted(X=X, y=y, score=score, pockets=tuple(pockets), band=band[0] if band else None)
