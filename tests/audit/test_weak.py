@@ -156,26 +156,26 @@ def _confirmed(rows: np.ndarray, observed: int, expected: float, p: float, graph
     )  # fmt: skip
 
 
-def test_a_repeat_is_named_by_its_most_concentrated_member_not_its_largest():
-    # A weak pocket of 600 rows erring at 0.8 where 0.2 is expected, seen twice: once
-    # tightly, once inside a region three times its size (the other rows as promised).
-    # Hand computation (common practice, no source): the large region has the smaller
-    # p-value but half the excess per row; the tight one carries all of its excess.
-    tight = _confirmed(np.arange(600), observed=480, expected=120.0, p=1e-40, graph="tight")
-    large = _confirmed(np.arange(1800), observed=720, expected=360.0, p=1e-45, graph="large")
-    merged = merge_confirmed([large, tight])
-    assert [m.graph for m in merged] == ["tight"]
-    assert merged[0].also_found == ("large/error",)
+# Hand computations (common practice, no source). A weak pocket of 600 rows erring at 0.8
+# where 0.2 is expected: seen also inside a region three times its size (the other rows
+# as promised), which has the smaller p-value but half the excess per row, the tight one
+# stands; seen also as a 40-row fragment with a higher rate but far less than half of the
+# pocket's excess, the pocket stands.
+_POCKET = dict(rows=np.arange(600), observed=480, expected=120.0, p=1e-40, graph="pocket")
 
 
-def test_a_small_fragment_does_not_stand_for_the_region_it_lies_in():
-    # A 40-row fragment with a higher rate than its 600-row region carries far less than
-    # half of the region's excess, so the region stands (hand computation, no source).
-    whole = _confirmed(np.arange(600), observed=480, expected=120.0, p=1e-40, graph="whole")
-    fragment = _confirmed(np.arange(40), observed=40, expected=2.0, p=1e-20, graph="fragment")
-    merged = merge_confirmed([fragment, whole])
-    assert [m.graph for m in merged] == ["whole"]
-    assert merged[0].also_found == ("fragment/error",)
+@pytest.mark.parametrize(
+    ("other", "stands"),
+    [
+        (dict(rows=np.arange(1800), observed=720, expected=360.0, p=1e-45), "pocket"),
+        (dict(rows=np.arange(40), observed=40, expected=2.0, p=1e-20), "pocket"),
+    ],
+    ids=["inside a larger region", "with a fragment of it"],
+)
+def test_a_repeat_is_named_by_its_most_concentrated_member_that_carries_its_excess(other, stands):
+    merged = merge_confirmed([_confirmed(**other, graph="other"), _confirmed(**_POCKET)])
+    assert [m.graph for m in merged] == [stands]
+    assert merged[0].also_found == ("other/error",)
 
 
 def test_separate_regions_stay_separate_when_merged():
