@@ -10,7 +10,10 @@ whose rows overlap the pocket with Jaccard >= 0.5. Shapes:
   relevant features (neither axis-aligned nor convex);
 * ``island``: about 4% of rows displaced far along two irrelevant features (a small
   separate group), all of it the pocket;
-* ``flare``: 12% of rows along a ray out of the bulk; the pocket is the outer third of it.
+* ``flare``: 12% of rows along a ray out of the bulk; the pocket is the outer third of it;
+* ``band``: a thin slab of 8% of rows across a direction that mixes three features (one
+  relevant, two not) with about equal weights: no feature alone, nor any axis-aligned
+  box, holds it.
 
 The null simulations have no pocket: ``calibrated`` draws outcomes from the scores
 themselves; ``inflated`` doubles the error probability of every row alike (capped at
@@ -26,7 +29,9 @@ import numpy as np
 
 __all__ = ["Simulation", "simulate"]
 
-SHAPES = ("curved", "island", "flare", "calibrated", "inflated")
+SHAPES = ("curved", "island", "flare", "calibrated", "inflated", "band")
+#: the band's direction over features 0, 3 and 5 (unit length)
+BAND_DIRECTION = np.array([0.6, -0.55, 0.58]) / np.linalg.norm([0.6, -0.55, 0.58])
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,7 +58,7 @@ def _curved_pocket(X: np.ndarray, share: float) -> np.ndarray:
 
 def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int = 0) -> Simulation:
     """Draw one simulation of ``shape`` (one of ``curved``, ``island``, ``flare``,
-    ``calibrated``, ``inflated``)."""
+    ``calibrated``, ``inflated``, ``band``)."""
     if shape not in SHAPES:
         msg = f"Unknown simulation shape {shape!r}; the shapes are {', '.join(SHAPES)}."
         raise ValueError(msg)
@@ -72,6 +77,9 @@ def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int
         X[flare, 5] = 2.0 + 6.0 * t + rng.normal(0, 0.3, flare.sum())
         X[flare, 6] = 2.0 + 3.0 * t + rng.normal(0, 0.3, flare.sum())
         pocket[np.flatnonzero(flare)[t > 2 / 3]] = True
+    elif shape == "band":
+        gap = np.abs(X[:, [0, 3, 5]] @ BAND_DIRECTION - 0.3)
+        pocket = gap <= np.quantile(gap, 0.08)
     logit = 1.1 * X[:, 0] - 0.9 * X[:, 1] + 0.7 * X[:, 2] - 0.4
     score = 1.0 / (1.0 + np.exp(-logit))
     q = np.minimum(score, 1 - score)

@@ -73,6 +73,35 @@ def test_description_ranks_the_distinguishing_feature_and_finds_a_rule():
     assert d.rule.precision > 0.9 and d.rule.recall > 0.9 and d.rule.depth <= 3
 
 
+@pytest.mark.parametrize("standardised_search", [True, False])
+def test_slab_band_gives_the_direction_on_standardised_features(standardised_search):
+    # constructed answer (common practice, no source): a band across two features of
+    # different scales, found by a search that did or did not standardise them
+    rng = np.random.default_rng(6)
+    n = 4000
+    X = np.column_stack([rng.normal(50, 10, n), rng.normal(0, 0.1, n), rng.normal(size=n)])
+    Z = (X - X.mean(axis=0)) / X.std(axis=0)
+    truth = np.array([0.8, -0.6, 0.0])  # on the standardised columns
+    t = Z @ truth
+    mask = np.abs(t - 0.5) < 0.1
+    if standardised_search:
+        direction, scale = truth, None
+    else:  # the same direction over the raw columns: weights divided by the deviations
+        direction = truth / X.std(axis=0)
+        direction /= np.linalg.norm(direction)
+        scale = np.ones(3)
+    frame = pd.DataFrame(X, columns=["pipe_age", "pressure_drop", "noise"])
+    d = describe_region(
+        mask, frame, X, list(frame.columns), direction=direction, search_scale=scale
+    )
+    assert [(x.feature, x.weight) for x in d.band.terms] == [
+        ("pipe_age", 0.8),
+        ("pressure_drop", -0.6),
+    ]
+    assert 0.4 <= d.band.low < 0.45 and 0.55 < d.band.high <= 0.6
+    assert describe_region(mask, frame, X, list(frame.columns)).band is None
+
+
 def test_local_model_helps_where_the_release_is_miscalibrated():
     rng = np.random.default_rng(2)
     n = 1500

@@ -67,6 +67,17 @@ def test_island_and_flare_tip_pockets_are_confirmed(shape):
 
 
 @pytest.mark.slow
+@SECOND
+def test_thin_band_across_three_features_is_found_by_the_slab_graph():
+    for seed in range(3):
+        sim = simulate("band", 20_000, seed=seed)
+        found = _confirmed(sim, seed)
+        assert _best_jaccard(found, sim.pocket) >= 0.5, seed
+        best = max(found, key=lambda f: int(sim.pocket[f.rows].sum()))
+        assert best.graph == "slab", (seed, best.graph)
+
+
+@pytest.mark.slow
 @pytest.mark.parametrize(
     "shape",
     [pytest.param("calibrated", marks=SECOND), pytest.param("inflated", marks=FIRST)],

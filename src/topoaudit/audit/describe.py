@@ -9,6 +9,10 @@ Three descriptions, each labelled as what it is:
 * a shallow surrogate rule: a decision tree of depth at most 3 fitted to "in the region"
   against "not", whose positive leaves are read as a rule, with the precision and recall
   of that rule for the region. It is an approximation of the region, not its definition.
+
+A region found along the slab graph's direction also gets that direction, as weights on
+the standardised features (the features that carry 90% of it, largest first), and the band
+its rows fill along it: an oblique band has no short axis-aligned rule.
 """
 
 from __future__ import annotations
@@ -17,10 +21,13 @@ import numpy as np
 import pandas as pd
 from sklearn.tree import DecisionTreeClassifier
 
+from topoaudit.audit.oblique import carrying_features
 from topoaudit.bundle.records import (
     CategoryContrast,
     Description,
     FeatureContrast,
+    SlabBand,
+    SlabTerm,
     SurrogateRule,
 )
 
@@ -65,11 +72,15 @@ def describe_region(
     top: int = 5,
     max_depth: int = 3,
     random_state: int = 0,
+    direction: np.ndarray | None = None,
+    search_scale: np.ndarray | None = None,
 ) -> Description:
     """Describe the rows of ``mask`` against the others.
 
     ``frame`` holds the features as read (numeric and categorical); ``X`` and
-    ``feature_names`` the encoded matrix the surrogate tree is fitted on.
+    ``feature_names`` the encoded matrix the surrogate tree is fitted on. ``direction``:
+    for a region found along the slab graph's direction, that direction over the columns
+    of ``X`` as the search scaled them, by ``search_scale`` (see :func:`slab_band`).
     """
     mask = np.asarray(mask, dtype=bool)
     contrasts = []
@@ -107,4 +118,38 @@ def describe_region(
         recall=tp / int(mask.sum()) if mask.any() else float("nan"),
         depth=int(tree.get_depth()),
     )
-    return Description(tuple(contrasts[:top]), tuple(categories[:top]), rule)
+    band = None
+    if direction is not None:
+        band = slab_band(mask, X, feature_names, direction, search_scale=search_scale)
+    return Description(tuple(contrasts[:top]), tuple(categories[:top]), rule, band)
+
+
+def slab_band(
+    mask: np.ndarray,
+    X: np.ndarray,
+    feature_names: tuple[str, ...] | list[str],
+    direction: np.ndarray,
+    *,
+    search_scale: np.ndarray | None = None,
+) -> SlabBand:
+    """The direction as weights on the standardised columns of ``X`` and the band (5th to
+    95th percentile) of the region's rows along it.
+
+    ``direction`` is a unit vector over the columns as the search scaled them: divided by
+    ``search_scale`` (their standard deviations when the search standardised them, the
+    default; ones when it did not). On standardised columns the same direction has
+    weights ``direction * sd / search_scale``, rescaled to unit length.
+    """
+    X = np.asarray(X, dtype=float)
+    sd = X.std(axis=0)
+    sd = np.where(sd > 0, sd, 1.0)
+    scale = sd if search_scale is None else np.asarray(search_scale, dtype=float)
+    weights = np.asarray(direction, dtype=float) * sd / scale
+    weights /= np.linalg.norm(weights)
+    t = ((X - X.mean(axis=0)) / sd) @ weights
+    low, high = np.quantile(t[np.asarray(mask, dtype=bool)], [0.05, 0.95])
+    terms = tuple(
+        SlabTerm(str(feature_names[j]), round(float(weights[j]), 3))
+        for j in carrying_features(weights)
+    )
+    return SlabBand(terms, round(float(low), 3), round(float(high), 3))

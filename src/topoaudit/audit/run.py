@@ -27,6 +27,7 @@ from topoaudit.audit.describe import describe_region
 from topoaudit.audit.local import local_model_test
 from topoaudit.audit.metrics import error_mix, outcome_table
 from topoaudit.audit.newdata import Placed, place_on_previous
+from topoaudit.audit.oblique import carrying_features
 from topoaudit.audit.regions import Partition, partition_graph
 from topoaudit.audit.search import ErrorLens, SearchGraph, SearchSettings, search_graphs
 from topoaudit.audit.segments import declared_segments
@@ -331,11 +332,13 @@ def weak_region(
     graph: MapperGraph,
     discovery: np.ndarray | None = None,
     partition: Partition | None = None,
+    direction: np.ndarray | None = None,
 ) -> rec.WeakRegion:
     """Weak region ``W{i}``: its metrics, who is in it, and whether a local model does
     better there (its stability is filled in by :func:`with_stability`). With the
     ``discovery`` half's mask, a classification also gets the error rate of its rows on
-    the confirmation half, with its Wilson interval."""
+    the confirmation half, with its Wilson interval. ``direction``: the slab graph's
+    direction, for a region found there (its description then gives the band)."""
     ds, a = inp.ds, inp.config.audit
     mask = np.zeros(ds.n_rows, dtype=bool)
     mask[f.rows] = True
@@ -351,7 +354,15 @@ def weak_region(
         share_of_rows=f.rows.size / ds.n_rows,
         error_interval_points=_points(interval),
         metrics=metrics,
-        description=describe_region(mask, ds.frame, ds.X, ds.feature_names, random_state=inp.seed),
+        description=describe_region(
+            mask,
+            ds.frame,
+            ds.X,
+            ds.feature_names,
+            random_state=inp.seed,
+            direction=direction,
+            search_scale=None if inp.config.graph.standardize else np.ones(ds.X.shape[1]),
+        ),
         local_model=local_model_test(
             ds.X[f.rows],
             ds.target[f.rows],
@@ -384,7 +395,8 @@ def weak_regions(
             f"describing weak region W{i} ({i} of {len(found.weak)}) and testing a local model "
             "there",
         )
-        weak.append(weak_region(inp, i, f, views, graph, found.discovery, partition))
+        slab = next((g.weights for g in found.graphs if g.name == f.graph == "slab"), None)
+        weak.append(weak_region(inp, i, f, views, graph, found.discovery, partition, slab))
     return weak
 
 
@@ -616,6 +628,14 @@ def search_records(
     inp: AuditInputs, graphs: list[SearchGraph]
 ) -> tuple[rec.SearchGraphRecord, ...]:
     names = list(inp.ds.feature_names)
+
+    def used(s: SearchGraph) -> tuple[str, ...]:
+        if s.weights is None:
+            return tuple(names)
+        if s.name == "slab":  # a direction: the features that carry it, largest first
+            return tuple(names[j] for j in carrying_features(s.weights))
+        return tuple(n for n, w in zip(names, s.weights, strict=True) if w > 0)
+
     return tuple(
         rec.SearchGraphRecord(
             name=s.name,
@@ -623,11 +643,7 @@ def search_records(
             nodes=s.graph.n_nodes,
             edges=s.graph.n_edges,
             settings=s.graph.settings,
-            features_used=tuple(
-                names
-                if s.weights is None
-                else [n for n, w in zip(names, s.weights, strict=True) if w > 0]
-            ),
+            features_used=used(s),
         )
         for s in graphs
     )

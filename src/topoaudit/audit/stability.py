@@ -1,7 +1,7 @@
 """Do the weak regions survive other settings and other samples?
 
 The search is rerun over a grid around the chosen search settings (by default interval
-offsets -2, 0, +2 times overlap offsets -0.1, 0, +0.1, applied to both search graphs)
+offsets -2, 0, +2 times overlap offsets -0.1, 0, +0.1, applied to every search graph)
 and over seeded subsamples of 80% of the rows (drawn without replacement, so no row
 appears twice in a graph). In each run, a weak region counts as found again when some
 confirmed region of that run overlaps it with Jaccard at least ``match_jaccard`` (0.5),
@@ -72,20 +72,23 @@ def _pack(
     X: np.ndarray, losses: Sequence[Losses], discovery: np.ndarray, lens: ErrorLens | None
 ) -> np.ndarray:
     """The rerun tasks' shared array: the features, each loss's observed and expected
-    values, the discovery half (0 or 1) and the lens values (NaN without a lens)."""
+    values, the discovery half (0 or 1), the lens values and the slab graph's lens values
+    (NaN without them)."""
     columns = [np.asarray(X, dtype=np.float64)]
     for loss in losses:
         columns += [loss.observed[:, None], loss.expected[:, None]]
-    lens_values = lens.values if lens is not None else np.full(X.shape[0], np.nan)
-    columns += [discovery[:, None], lens_values[:, None]]
+    missing = np.full(X.shape[0], np.nan)
+    lens_values = lens.values if lens is not None else missing
+    along = lens.along if lens is not None and lens.along is not None else missing
+    columns += [discovery[:, None], lens_values[:, None], along[:, None]]
     return np.hstack(columns).astype(np.float64, copy=False)
 
 
 def _unpack(
     shared: np.ndarray, n_features: int, kinds: Sequence[tuple[str, bool]], rows: Any
-) -> tuple[np.ndarray, list[Losses], np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, list[Losses], np.ndarray, np.ndarray, np.ndarray]:
     """The rows ``rows`` (a slice or positions) of :func:`_pack`'s array, as fresh
-    contiguous arrays: features, losses, discovery half, lens values."""
+    contiguous arrays: features, losses, discovery half, lens values, slab lens values."""
 
     def column(j: int) -> np.ndarray:
         return np.ascontiguousarray(shared[rows, j])
@@ -95,7 +98,7 @@ def _unpack(
     for kind, counts in kinds:
         losses.append(Losses(kind, column(j), column(j + 1), counts))
         j += 2
-    return X, losses, column(j) > 0.5, column(j + 1)
+    return X, losses, column(j) > 0.5, column(j + 1), column(j + 2)
 
 
 def _rerun(
@@ -103,7 +106,7 @@ def _rerun(
     n_features: int,
     kinds: tuple[tuple[str, bool], ...],
     plan: _Plan,
-    lens: tuple[np.ndarray, np.ndarray] | None,
+    lens: tuple[np.ndarray, np.ndarray, np.ndarray | None] | None,
     fdr: float,
     min_rows: int,
     random_state: int,
@@ -115,11 +118,16 @@ def _rerun(
     n_rows = shared.shape[0]
     if plan.subsample is None:
         rows = np.arange(n_rows)
-        X, losses, discovery, values = _unpack(shared, n_features, kinds, slice(None))
+        X, losses, discovery, values, along = _unpack(shared, n_features, kinds, slice(None))
     else:
         rows = _subsample_rows(n_rows, plan.subsample, random_state)
-        X, losses, discovery, values = _unpack(shared, n_features, kinds, rows)
-    known = ErrorLens(lens[0], lens[1], values) if lens is not None else None
+        X, losses, discovery, values, along = _unpack(shared, n_features, kinds, rows)
+    known = None
+    if lens is not None:
+        direction = lens[2]
+        known = ErrorLens(
+            lens[0], lens[1], values, direction, along if direction is not None else None
+        )
     with threadpool_limits(limits=1):
         graphs = search_graphs(
             X, losses, discovery, plan.settings, random_state=random_state, lens=known
@@ -194,7 +202,7 @@ def stability_runs(
     to_run = [p for i, p in enumerate(plans) if i not in known_runs]
     shared = _pack(X, losses, discovery, lens)
     kinds = tuple((x.kind, bool(x.counts)) for x in losses)
-    known = (lens.weights, lens.importance) if lens is not None else None
+    known = (lens.weights, lens.importance, lens.direction) if lens is not None else None
     tasks = [
         (
             X.shape[1],

@@ -73,6 +73,8 @@ __all__ = [
     "ShapeRecord",
     "ShiftRecord",
     "SignOff",
+    "SlabBand",
+    "SlabTerm",
     "Stability",
     "StabilityRun",
     "Summary",
@@ -443,12 +445,33 @@ class SurrogateRule(_Record):
 
 
 @record
+class SlabTerm(_Record):
+    """One feature of a direction across the features, and its weight."""
+
+    feature: str
+    weight: float
+
+
+@record
+class SlabBand(_Record):
+    """Where a region found along one direction lies: the direction as weights on the
+    standardised features (value minus mean, over standard deviation), largest first,
+    and the band its rows fill along it (5th to 95th percentile of the weighted sum)."""
+
+    terms: tuple[SlabTerm, ...]
+    low: float
+    high: float
+
+
+@record
 class Description(_Record):
-    """Who is in a region, in feature terms."""
+    """Who is in a region, in feature terms (with the band along the slab graph's
+    direction, for a region found there)."""
 
     contrasts: tuple[FeatureContrast, ...]
     categories: tuple[CategoryContrast, ...]
     rule: SurrogateRule
+    band: SlabBand | None = omit_when_none()
 
 
 @record

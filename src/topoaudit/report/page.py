@@ -61,6 +61,7 @@ from topoaudit.bundle.records import (
     SegmentLevel,
     ShapeFeatureRecord,
     ShapeRecord,
+    SlabBand,
     WeakRegion,
 )
 from topoaudit.report import views
@@ -443,6 +444,8 @@ def _description(desc: Description) -> list[str]:
             + "."
         )
         lines.append("")
+    if desc.band is not None:
+        lines += _band_sentence(desc.band)
     rule = desc.rule
     n = len(re.findall(r" (?:<=|>) ", rule.text))
     conditions = "one condition" if n == 1 else f"{n} conditions"
@@ -460,6 +463,22 @@ def _description(desc: Description) -> list[str]:
             "",
         ]
     return lines
+
+
+def _band_sentence(band: SlabBand) -> list[str]:
+    """Where a region found along one direction lies along it."""
+    terms = []
+    for k, t in enumerate(band.terms):
+        sign = ("-" if t.weight < 0 else "") if k == 0 else (" - " if t.weight < 0 else " + ")
+        terms.append(f"{sign}{abs(t.weight):.2f} × {escape(t.feature)}")
+    return [
+        f"Along the direction it was found on, {''.join(terms)} (each feature standardised: "
+        f"value minus mean, over standard deviation), its rows lie between {rate(band.low, 2)} "
+        f"and {rate(band.high, 2)} (5th to 95th percentile): a band across "
+        f"{plural(len(band.terms), 'feature')}, which the approximate rule below, cutting "
+        "one feature at a time, can only follow in steps.",
+        "",
+    ]
 
 
 #: below this precision or recall, an approximate rule is labelled a poor description
@@ -871,7 +890,7 @@ def _stability_words(a: Analysis) -> list[str]:
     parts = []
     if grid:
         parts.append(
-            f"- {plural(len(grid), 'rerun')} of the whole search with the covers of both "
+            f"- {plural(len(grid), 'rerun')} of the whole search with the covers of the "
             "search graphs changed: their interval counts moved by "
             f"{_listed(audit.get('stability_intervals', []))} "
             f"(audit.stability_intervals) and their overlaps by "

@@ -47,7 +47,11 @@ KIND_WORDS = {
     "squared_error": "squared errors",
 }
 #: what a search graph is called on a page
-GRAPH_WORDS = {"features": "feature graph", "error_aware": "error-aware graph"}
+GRAPH_WORDS = {
+    "features": "feature graph",
+    "error_aware": "error-aware graph",
+    "slab": "graph along one direction across the features",
+}
 #: a weak region holding at least this share of all rows is called broad
 BROAD_SHARE = 0.25
 

@@ -1,0 +1,90 @@
+"""The slab graph's direction (:mod:`topoaudit.audit.oblique`).
+
+References: statsmodels' ``PrincipalHessianDirections`` (a general-purpose reference
+library) and the closed form of Li (1992, JASA 87: 1025-1039, section 3) for a response
+``(b'x)^2`` of standard normal ``x``, whose Hessian matrix is ``2 b b'`` (Isserlis' theorem:
+``E[(b'x)^2 x x'] = |b|^2 I + 2 b b'``); Kulldorff's scan statistic of
+:func:`topoaudit.audit.weak.scan_statistic` for the window statistic.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from statsmodels.regression.dimred import PrincipalHessianDirections
+
+from topoaudit.audit.oblique import (
+    SLAB_SHARES,
+    hessian_directions,
+    slab_direction,
+    slab_statistic,
+)
+from topoaudit.audit.weak import Losses, scan_statistic
+
+
+def _whitened(n: int, p: int, seed: int) -> np.ndarray:
+    """Rows whose sample covariance (ddof 1) is exactly the identity."""
+    X = np.random.default_rng(seed).normal(size=(n, p))
+    X -= X.mean(axis=0)
+    L = np.linalg.cholesky(np.cov(X.T))
+    return X @ np.linalg.inv(L).T
+
+
+def test_hessian_directions_match_statsmodels_on_whitened_rows():
+    X = _whitened(3000, 5, 0)
+    rng = np.random.default_rng(1)
+    y = (X @ np.array([1.0, -0.5, 0.0, 0.3, 0.0])) ** 2 - 0.5 * X[:, 2] ** 2
+    y = y + rng.normal(size=y.size)
+    values, vectors = hessian_directions(X, y - y.mean())
+    ref = PrincipalHessianDirections(y, X).fit()
+    np.testing.assert_allclose(np.sort(values), np.sort(np.real(ref.eigs)), rtol=1e-9, atol=1e-12)
+    # the direction of the largest absolute eigenvalue, up to sign
+    mine = vectors[:, int(np.argmax(np.abs(values)))]
+    theirs = np.real(ref.params[:, 0])
+    assert abs(mine @ theirs) / np.linalg.norm(theirs) == pytest.approx(1.0, abs=1e-9)
+
+
+def test_hessian_directions_of_a_squared_projection_are_li_closed_form():
+    rng = np.random.default_rng(2)
+    X = rng.normal(size=(200_000, 4))
+    b = np.array([0.8, 0.0, -0.6, 0.0]) * 1.5
+    y = (X @ b) ** 2
+    values, vectors = hessian_directions(X, y - y.mean())
+    assert values[-1] == pytest.approx(2 * b @ b, rel=0.05)
+    assert abs(vectors[:, -1] @ b) / np.linalg.norm(b) > 0.995
+    assert np.abs(values[:-1]).max() < 0.1 * values[-1]
+
+
+def test_slab_statistic_is_the_largest_window_scan_of_consecutive_rows():
+    rng = np.random.default_rng(3)
+    n = 400
+    t = rng.normal(size=n)
+    observed = (rng.random(n) < np.where(np.abs(t - 0.5) < 0.1, 0.7, 0.2)).astype(float)
+    expected = np.full(n, observed.sum() / n)
+    order = np.argsort(t, kind="stable")
+    total, best = observed.sum(), 0.0
+    for share in SLAB_SHARES:
+        m = max(10, int(share * n))
+        for start in range(n - m + 1):
+            rows = order[start : start + m]
+            best = max(best, scan_statistic(observed[rows].sum(), expected[rows].sum(), total))
+    assert slab_statistic(t, observed, expected) == pytest.approx(best, rel=1e-12)
+    assert best > 5  # the planted window stands out
+
+
+def test_slab_direction_recovers_a_slab_across_three_features():
+    # common practice, no source: a planted slab whose direction is known
+    rng = np.random.default_rng(4)
+    n, p = 8000, 6
+    X = rng.normal(size=(n, p))
+    w = np.array([0.0, 0.7, 0.0, -0.5, 0.5, 0.0])
+    w /= np.linalg.norm(w)
+    gap = np.abs(X @ w - 0.2)
+    slab = gap <= np.quantile(gap, 0.08)
+    expected = np.full(n, 0.2)
+    observed = (rng.random(n) < np.where(slab, 0.6, 0.2)).astype(float)
+    discovery = rng.random(n) < 0.5
+    found, statistic = slab_direction(X, Losses("error", observed, expected), discovery)
+    assert abs(found @ w) > 0.98
+    assert statistic > 20
+    assert np.linalg.norm(found) == pytest.approx(1.0)
