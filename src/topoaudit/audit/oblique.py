@@ -100,8 +100,9 @@ def _refine(
     for h in WIDTHS:
         eta = 0.2
         c = _centre(X @ w, r, v, h)
+        t = X @ w
         for _ in range(iterations):
-            u = (X @ w - c) / h
+            u = (t - c) / h
             k = np.exp(-0.5 * u**2)
             excess, var = float(r @ k), float(v @ k) + 1e-12
             score = excess / np.sqrt(var)
@@ -115,8 +116,9 @@ def _refine(
             w_new = w + eta * grad / norm
             w_new /= np.linalg.norm(w_new)
             c_new = c - 0.5 * eta * h * float(np.sign(coef.sum()))
-            if _smooth_slab(X @ w_new, r, v, c_new, h) > score:
-                w, c, eta = w_new, c_new, min(0.5, 1.3 * eta)
+            t_new = X @ w_new  # the projection of a kept step serves the next iteration
+            if _smooth_slab(t_new, r, v, c_new, h) > score:
+                w, c, t, eta = w_new, c_new, t_new, min(0.5, 1.3 * eta)
             else:
                 eta *= 0.5
                 if eta < 1e-3:
