@@ -131,3 +131,34 @@ def test_module_runs_as_a_command():
         check=True,
     )
     assert "publish" in done.stdout and "diff" in done.stdout
+
+
+def test_the_vega_scripts_are_bundled_once_per_vl_convert_version(tmp_path, monkeypatch):
+    import vl_convert as vlc
+
+    from topoaudit.report.site import vega_bundle
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    fresh = vlc.javascript_bundle()  # the reference: vl-convert's own bundle
+    assert vega_bundle() == fresh
+    cached = tmp_path / "cache" / "topoaudit" / f"vega-bundle-{vlc.__version__}.js"
+    assert cached.read_text(encoding="utf-8") == fresh
+    assert [p.name for p in cached.parent.iterdir()] == [cached.name]  # no partial file left
+
+    def no_bundling():
+        raise AssertionError("bundled again although the cache holds this version")
+
+    monkeypatch.setattr(vlc, "javascript_bundle", no_bundling)
+    assert vega_bundle() == fresh
+
+
+def test_a_cache_folder_that_cannot_be_written_only_costs_the_bundling(tmp_path, monkeypatch):
+    import vl_convert as vlc
+
+    from topoaudit.report.site import vega_bundle
+
+    blocker = tmp_path / "not-a-folder"
+    blocker.write_text("a file where the cache folder would go", encoding="utf-8")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(blocker))
+    assert vega_bundle() == vlc.javascript_bundle()
+    assert blocker.read_text(encoding="utf-8") == "a file where the cache folder would go"

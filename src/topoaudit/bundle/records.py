@@ -23,6 +23,7 @@ without them reads with ``None`` there.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import types
 import typing
 from dataclasses import dataclass, field
@@ -135,8 +136,7 @@ def from_dict(cls: type[R], data: Any, where: str) -> R:
     at = where.rstrip(":")
     if not isinstance(data, dict):
         raise BundleError(f"{at}: expected a table of {_name(cls)}, found {_kind(data)}.")
-    hints = typing.get_type_hints(cls)
-    fields = {f.name: f for f in dataclasses.fields(cls)}  # type: ignore[arg-type]
+    hints, fields = _layout(cls)
     unknown = sorted(set(data) - set(fields))
     if unknown:
         msg = (
@@ -154,6 +154,14 @@ def from_dict(cls: type[R], data: Any, where: str) -> R:
             msg = f"{at}: missing key {name!r}; a {_name(cls)} of schema {SCHEMA} has it."
             raise BundleError(msg)
     return cls(**values)
+
+
+@functools.cache
+def _layout(cls: type) -> tuple[dict[str, Any], dict[str, dataclasses.Field]]:
+    """A record class's resolved field types and its fields by name (resolved once per
+    class: resolving the annotations is most of the cost of reading a bundle)."""
+    fields = {f.name: f for f in dataclasses.fields(cls)}  # type: ignore[arg-type]
+    return typing.get_type_hints(cls), fields
 
 
 def _child(where: str, key: str) -> str:

@@ -186,6 +186,35 @@ def _write(path: Path, text: str) -> None:
     path.write_text(text, encoding="utf-8")
 
 
+def vega_bundle() -> str:
+    """The Vega, Vega-Lite and Vega-Embed scripts every page loads, as vl-convert bundles
+    them for its version (offline: the site fetches nothing).
+
+    Bundling takes about two seconds, and the result depends on vl-convert's version
+    alone, so it is kept in the user's cache folder (``$XDG_CACHE_HOME/topoaudit``, else
+    ``~/.cache/topoaudit``), one file per version, written whole or not at all; a cache
+    that cannot be read or written is passed over."""
+    import os
+
+    import vl_convert as vlc
+
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    cached = Path(base) / "topoaudit" / f"vega-bundle-{vlc.__version__}.js"
+    try:
+        return cached.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
+        pass
+    text = vlc.javascript_bundle()
+    try:
+        cached.parent.mkdir(parents=True, exist_ok=True)
+        part = cached.with_name(f".{cached.name}.{os.getpid()}")
+        part.write_text(text, encoding="utf-8")
+        os.replace(part, cached)
+    except OSError:
+        pass
+    return text
+
+
 def build_site(
     archive: str | Path,
     out: str | Path,
@@ -227,7 +256,6 @@ def _build_into(
     say: Progress,
 ) -> None:
     """Write the mkdocs project into the work folder and build the site into ``stage.path``."""
-    import vl_convert as vlc
     from mkdocs.commands.build import build
     from mkdocs.config import load_config
 
@@ -279,7 +307,7 @@ def _build_into(
     _write(docs / "index.md", home)
     assets = docs / "assets"
     assets.mkdir(parents=True, exist_ok=True)
-    (assets / "vega-bundle.js").write_text(vlc.javascript_bundle(), encoding="utf-8")
+    (assets / "vega-bundle.js").write_text(vega_bundle(), encoding="utf-8")
     for name in ("charts.js", "topoaudit.css"):
         shutil.copyfile(template / "assets" / name, assets / name)
     _write_mkdocs_config(template, work, Path(archive), site_name, nav)
