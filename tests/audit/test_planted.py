@@ -30,7 +30,8 @@ def _confirmed(sim, seed: int):
     losses = binary_losses(sim.y, sim.score, sim.threshold)
     discovery = split_halves(sim.y.size, sim.y, seed)
     graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=seed)
-    return merge_confirmed(find_weak_regions(graphs, losses, discovery, random_state=seed))
+    found = find_weak_regions(graphs, losses, discovery, random_state=seed)
+    return merge_confirmed(found, losses=losses, discovery=discovery)
 
 
 #: under pytest-xdist (make test: --dist loadgroup) the five long simulations run in two

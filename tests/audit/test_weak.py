@@ -182,3 +182,36 @@ def test_separate_regions_stay_separate_when_merged():
     a = _confirmed(np.arange(0, 300), observed=200, expected=60.0, p=1e-20, graph="a")
     b = _confirmed(np.arange(1000, 1300), observed=150, expected=60.0, p=1e-10, graph="b")
     assert [m.graph for m in merge_confirmed([b, a])] == ["a", "b"]
+
+
+def _shadow_case(second_rate_every: int):
+    """1,000 rows promised 0.1 each, halves alternating (each pair of rows, one in each
+    half, errs alike); rows 0-99 err 3 times in 5; rows 100-269 once in
+    ``second_rate_every``; every other row once in 10."""
+    n = 1000
+    i = np.arange(n)
+    j = i // 2
+    errors = np.where(i < 100, j % 5 < 3, j % 10 == 0)
+    errors = np.where((i >= 100) & (i < 270), j % second_rate_every == 0, errors)
+    loss = Losses("error", errors.astype(float), np.full(n, 0.1))
+    return loss, i % 2 == 0
+
+
+@pytest.mark.parametrize(("every", "kept"), [(10, ["first"]), (2, ["first", "second"])],
+                         ids=["no excess of its own", "an excess of its own"])  # fmt: skip
+def test_a_region_overlapping_an_earlier_one_must_hold_an_excess_outside_it(every, kept):
+    # Hand computation (common practice, no source; the rule after Zhang, Assuncao and
+    # Kulldorff, 2010): the second region (rows 70-269) shares 30 rows with the first
+    # (rows 0-99), too few to be merged with it. Outside them its 85 confirmation rows err
+    # once in 10, as promised, and it is the first seen through a wider window; erring
+    # once in 2 there, it stands.
+    loss, discovery = _shadow_case(every)
+    first = _confirmed(np.arange(0, 100), observed=30, expected=5.0, p=1e-12, graph="first")
+    second = _confirmed(np.arange(70, 270), observed=30, expected=10.0, p=1e-6, graph="second")
+    merged = merge_confirmed([second, first], losses=[loss], discovery=discovery)
+    assert [m.graph for m in merged] == kept
+    if kept == ["first"]:
+        assert merged[0].also_found == ("second/error",)
+    # without the losses, both stand as before
+    plain = merge_confirmed([second, first])
+    assert [m.graph for m in plain] == ["first", "second"]

@@ -50,7 +50,8 @@ def _tool(sim, seed: int) -> tuple[float, int, float]:
     disc = split_halves(sim.y.size, sim.y, seed)
     start = time.perf_counter()
     graphs = search_graphs(X, losses, disc, SearchSettings(), random_state=seed)
-    found = merge_confirmed(find_weak_regions(graphs, losses, disc, random_state=seed))
+    candidates = find_weak_regions(graphs, losses, disc, random_state=seed)
+    found = merge_confirmed(candidates, losses=losses, discovery=disc)
     took = time.perf_counter() - start
     best = max((_jaccard(f.rows, sim.pocket) for f in found), default=0.0)
     return best, len(found), took

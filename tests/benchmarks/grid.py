@@ -156,7 +156,8 @@ def _ours(X, sim, discovery, seed) -> list[np.ndarray]:
 
     losses = binary_losses(sim.y, sim.score, sim.threshold)
     graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=seed)
-    found = merge_confirmed(find_weak_regions(graphs, losses, discovery, random_state=seed))
+    candidates = find_weak_regions(graphs, losses, discovery, random_state=seed)
+    found = merge_confirmed(candidates, losses=losses, discovery=discovery)
     masks = []
     for f in found:
         m = np.zeros(X.shape[0], bool)

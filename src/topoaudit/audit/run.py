@@ -285,7 +285,8 @@ def search(inp: AuditInputs) -> Search:
     found = find_weak_regions(
         graphs, losses, discovery, fdr=a.fdr, min_rows=a.min_rows, random_state=inp.seed
     )
-    return Search(losses, discovery, settings, graphs, found, merge_confirmed(found))
+    weak = merge_confirmed(found, losses=losses, discovery=discovery)
+    return Search(losses, discovery, settings, graphs, found, weak)
 
 
 def regions_holding(rows: np.ndarray, partition: Partition) -> tuple[rec.RegionShare, ...]:

@@ -135,7 +135,8 @@ def _rerun(
         found = find_weak_regions(
             graphs, losses, discovery, fdr=fdr, min_rows=min_rows, random_state=random_state
         )
-    return [rows[f.rows] for f in merge_confirmed(found)]
+    merged = merge_confirmed(found, losses=losses, discovery=discovery)
+    return [rows[f.rows] for f in merged]
 
 
 def _plans(

@@ -493,7 +493,13 @@ def _excess_bound(f: CandidateRegion) -> tuple[float, float]:
 
 
 def merge_confirmed(
-    findings: Sequence[CandidateRegion], *, share: float = 0.5, carry: float = 0.5
+    findings: Sequence[CandidateRegion],
+    *,
+    share: float = 0.5,
+    carry: float = 0.5,
+    losses: Sequence[Losses] | None = None,
+    discovery: np.ndarray | None = None,
+    level: float = 0.05,
 ) -> list[CandidateRegion]:
     """The confirmed findings with repeats merged into one weak region each.
 
@@ -505,6 +511,15 @@ def merge_confirmed(
     largest (so a small fragment of a weak region does not stand for it), the one with
     the largest lower bound of excess per row (see :func:`_excess_bound`). The others are
     named in ``also_found``. For squared errors, the group's first finding stands.
+
+    With ``losses`` and the ``discovery`` half, a region that shares rows with a region
+    before it (one with a smaller p-value) must also hold an excess on its confirmation
+    rows outside those regions: the same one-sided exact binomial test at ``level``, on
+    those rows alone. One that does not is the earlier region seen through a wider window,
+    and is named as seen again in the region it shares most rows with (secondary regions
+    judged with the primary's rows set aside, after Zhang, Assunção and Kulldorff, 2010,
+    "Spatial scan statistics adjusted for multiple clusters", J. Probability and
+    Statistics, 642379). Counts only; a region of squared errors stands as it is.
     """
     confirmed = sorted(
         (f for f in findings if f.confirmed), key=lambda f: (f.p_adjusted, -f.llr, f.graph, f.kind)
@@ -530,4 +545,41 @@ def merge_confirmed(
             if f is not best and label not in labels:
                 labels.append(label)
         kept.append(replace(best, also_found=tuple(labels)))
-    return kept
+    if losses is None or discovery is None:
+        return kept
+    return _beyond_earlier(kept, losses, discovery, level)
+
+
+def _beyond_earlier(
+    kept: list[CandidateRegion], losses: Sequence[Losses], discovery: np.ndarray, level: float
+) -> list[CandidateRegion]:
+    """The regions of :func:`merge_confirmed` less those with no excess of their own
+    outside the regions before them (see there)."""
+    by_kind = {loss.kind: loss for loss in losses}
+    confirmation = ~discovery
+    out: list[CandidateRegion] = []
+    for f in kept:
+        loss = by_kind.get(f.kind)
+        if loss is None or not loss.counts or not out:
+            out.append(f)
+            continue
+        before = np.unique(np.concatenate([g.rows for g in out]))
+        rest = f.rows[~np.isin(f.rows, before)]
+        if rest.size == f.rows.size:
+            out.append(f)
+            continue
+        c_obs, c_exp, c_total = _scaled(loss, confirmation)
+        rows = rest[confirmation[rest]]
+        e_total = float(c_exp.sum())
+        share = min(1.0, float(c_exp[rows].sum()) / e_total) if e_total > 0 else 1.0
+        p = binomial_upper_test(round(float(c_obs[rows].sum())), round(c_total), share)
+        if rows.size and p <= level:
+            out.append(f)
+            continue
+        host = max(range(len(out)), key=lambda i: (np.isin(f.rows, out[i].rows).sum(), -i))
+        labels = list(out[host].also_found)
+        for label in (f"{f.graph}/{f.kind}", *f.also_found):
+            if label not in labels:
+                labels.append(label)
+        out[host] = replace(out[host], also_found=tuple(labels))
+    return out
