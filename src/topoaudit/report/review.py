@@ -257,8 +257,10 @@ def candidates_section(a: Analysis) -> list[str]:
         f"half; {count(tested)} of them {'was' if tested == 1 else 'were'} large enough to "
         "test on the confirmation half. Candidates that passed the false discovery rate and "
         "share most of their rows are one weak region seen again: they are listed under "
-        'its name. "In regions" names the regions of the shown graph that hold most of '
-        "a candidate's rows.",
+        "its name. So is one that passed but overlaps a weak region and holds no excess "
+        "of its own on its confirmation rows outside it: it is that region seen through a "
+        'wider window. "In regions" names the regions of the shown graph that hold most '
+        "of a candidate's rows.",
         "",
         "| candidate | found in | rows | in regions | confirmation rows | observed / "
         "promised | adjusted p-value | outcome |",
