@@ -184,18 +184,11 @@ def _oracle(sim, discovery: np.ndarray) -> list[float]:
     """Each pocket's p-value when the pocket itself is the candidate: the test topoaudit
     applies to a candidate (the exact conditional binomial test on the confirmation half,
     :func:`topoaudit.audit.weak.find_weak_regions`), on the pocket's confirmation rows."""
-    from topoaudit.audit.stats import binomial_upper_test
-    from topoaudit.audit.weak import binary_losses
+    from topoaudit.audit.weak import _count_p_value, _scaled, binary_losses
 
-    loss = binary_losses(sim.y, sim.score, sim.threshold)[0]
     conf = ~discovery
-    observed, expected = loss.observed[conf], loss.expected[conf]
-    out = []
-    for pocket in sim.pockets:
-        inside = pocket[conf]
-        share = float(expected[inside].sum() / expected.sum())
-        out.append(binomial_upper_test(round(observed[inside].sum()), round(observed.sum()), share))
-    return out
+    half = _scaled(binary_losses(sim.y, sim.score, sim.threshold)[0], conf)
+    return [_count_p_value(*half, np.flatnonzero(pocket & conf)) for pocket in sim.pockets]
 
 
 def with_oracle(r: dict[str, Any]) -> dict[str, Any]:

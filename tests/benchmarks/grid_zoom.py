@@ -65,12 +65,9 @@ def zoom(X, loss, discovery, rows, kept, seed: int):
 
 
 def _p_value(loss, discovery, rows) -> float:
-    from topoaudit.audit.stats import binomial_upper_test
-    from topoaudit.audit.weak import _scaled
+    from topoaudit.audit.weak import _count_p_value, _scaled
 
-    obs, exp, total = _scaled(loss, ~discovery)
-    conf = rows[~discovery[rows]]
-    return binomial_upper_test(round(obs[conf].sum()), round(total), exp[conf].sum() / exp.sum())
+    return _count_p_value(*_scaled(loss, ~discovery), rows[~discovery[rows]])
 
 
 def run(family: str, size: float, strength: float, rows: int, features: int, seed: int):

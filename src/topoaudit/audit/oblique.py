@@ -99,8 +99,8 @@ def _refine(
     refused one."""
     for h in WIDTHS:
         eta = 0.2
-        c = _centre(X @ w, r, v, h)
         t = X @ w
+        c = _centre(t, r, v, h)
         for _ in range(iterations):
             u = (t - c) / h
             k = np.exp(-0.5 * u**2)

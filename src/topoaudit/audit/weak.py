@@ -388,6 +388,16 @@ def _jaccard(a: np.ndarray, b: np.ndarray) -> float:
     return inter / union if union else 0.0
 
 
+def _count_p_value(obs: np.ndarray, exp: np.ndarray, total: float, rows: np.ndarray) -> float:
+    """The confirmation test of a count region (module docstring): given the ``total``
+    events of the half (``obs``, ``exp`` from :func:`_scaled`), the one-sided exact
+    binomial p-value of the count in ``rows``, each event falling there with probability
+    their share of the expected total."""
+    e_total = float(exp.sum())
+    share = min(1.0, float(exp[rows].sum()) / e_total) if e_total > 0 else 1.0
+    return binomial_upper_test(round(float(obs[rows].sum())), round(total), share)
+
+
 def _estimate(
     rows: np.ndarray, obs: np.ndarray, exp: np.ndarray, loss: Losses, half: np.ndarray
 ) -> HalfEstimate:
@@ -444,9 +454,7 @@ def find_weak_regions(
                 tested = conf.rows >= min_rows
                 p = float("nan")
                 if tested and loss.counts:
-                    e_total = float(c_exp.sum())
-                    share = min(1.0, conf.expected / e_total) if e_total > 0 else 1.0
-                    p = binomial_upper_test(round(conf.observed), round(c_total), share)
+                    p = _count_p_value(c_obs, c_exp, c_total, c_rows)
                 elif tested:
                     rest = np.flatnonzero(confirmation)
                     rest = rest[~np.isin(rest, c_rows)]
@@ -568,12 +576,8 @@ def _beyond_earlier(
         if rest.size == f.rows.size:
             out.append(f)
             continue
-        c_obs, c_exp, c_total = _scaled(loss, confirmation)
         rows = rest[confirmation[rest]]
-        e_total = float(c_exp.sum())
-        share = min(1.0, float(c_exp[rows].sum()) / e_total) if e_total > 0 else 1.0
-        p = binomial_upper_test(round(float(c_obs[rows].sum())), round(c_total), share)
-        if rows.size and p <= level:
+        if rows.size and _count_p_value(*_scaled(loss, confirmation), rows) <= level:
             out.append(f)
             continue
         host = max(range(len(out)), key=lambda i: (np.isin(f.rows, out[i].rows).sum(), -i))
