@@ -13,7 +13,11 @@ whose rows overlap the pocket with Jaccard >= 0.5. Shapes:
 * ``flare``: 12% of rows along a ray out of the bulk; the pocket is the outer third of it;
 * ``band``: a thin slab of 8% of rows across a direction that mixes three features (one
   relevant, two not) with about equal weights: no feature alone, nor any axis-aligned
-  box, holds it.
+  box, holds it;
+* ``two``: two pockets of 4% of rows each, in different features: an island as above
+  (displaced along features 3 and 4) and a box of the rows inside a middle window of
+  features 0 and 5 (each window a fifth of the rows, not in the island); ``parts`` holds
+  each pocket, ``pocket`` their union.
 
 The null simulations have no pocket: ``calibrated`` draws outcomes from the scores
 themselves; ``inflated`` doubles the error probability of every row alike (capped at
@@ -29,7 +33,7 @@ import numpy as np
 
 __all__ = ["Simulation", "simulate"]
 
-SHAPES = ("curved", "island", "flare", "calibrated", "inflated", "band")
+SHAPES = ("curved", "island", "flare", "calibrated", "inflated", "band", "two")
 #: the band's direction over features 0, 3 and 5 (unit length)
 BAND_DIRECTION = np.array([0.6, -0.55, 0.58]) / np.linalg.norm([0.6, -0.55, 0.58])
 
@@ -41,6 +45,8 @@ class Simulation:
     score: np.ndarray
     pocket: np.ndarray
     threshold: float = 0.5
+    #: each pocket, when there are several (``pocket`` is their union)
+    parts: tuple[np.ndarray, ...] = ()
 
 
 def _curved_pocket(X: np.ndarray, share: float) -> np.ndarray:
@@ -58,13 +64,14 @@ def _curved_pocket(X: np.ndarray, share: float) -> np.ndarray:
 
 def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int = 0) -> Simulation:
     """Draw one simulation of ``shape`` (one of ``curved``, ``island``, ``flare``,
-    ``calibrated``, ``inflated``, ``band``)."""
+    ``calibrated``, ``inflated``, ``band``, ``two``)."""
     if shape not in SHAPES:
         msg = f"Unknown simulation shape {shape!r}; the shapes are {', '.join(SHAPES)}."
         raise ValueError(msg)
     rng = np.random.default_rng([seed, SHAPES.index(shape)])
     X = rng.normal(size=(n_rows, n_features))
     pocket = np.zeros(n_rows, dtype=bool)
+    parts: tuple[np.ndarray, ...] = ()
     if shape == "curved":
         pocket = _curved_pocket(X, 0.05)
     elif shape == "island":
@@ -80,6 +87,16 @@ def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int
     elif shape == "band":
         gap = np.abs(X[:, [0, 3, 5]] @ BAND_DIRECTION - 0.3)
         pocket = gap <= np.quantile(gap, 0.08)
+    elif shape == "two":
+        island = np.zeros(n_rows, dtype=bool)
+        island[: int(0.04 * n_rows)] = True
+        X[island, 3:5] += 6.0
+        box = ~island
+        for j in (0, 5):
+            lo, hi = np.quantile(X[:, j], [0.4, 0.6])
+            box &= (X[:, j] >= lo) & (X[:, j] <= hi)
+        parts = (island, box)
+        pocket = island | box
     logit = 1.1 * X[:, 0] - 0.9 * X[:, 1] + 0.7 * X[:, 2] - 0.4
     score = 1.0 / (1.0 + np.exp(-logit))
     q = np.minimum(score, 1 - score)
@@ -90,4 +107,4 @@ def simulate(shape: str, n_rows: int = 20_000, n_features: int = 8, *, seed: int
     decision = score >= 0.5
     wrong = rng.uniform(size=n_rows) < q
     y = np.where(wrong, ~decision, decision).astype(np.int64)
-    return Simulation(X=X, y=y, score=score, pocket=pocket)
+    return Simulation(X=X, y=y, score=score, pocket=pocket, parts=parts)

@@ -79,6 +79,36 @@ def test_thin_band_across_three_features_is_found_by_the_slab_graph():
 
 
 @pytest.mark.slow
+@FIRST
+def test_two_pockets_in_different_features_are_both_found_with_the_set_aside_graph():
+    # the second pocket (a box in features 0 and 5) is blurred in the error-aware graph,
+    # whose features also hold the island's; set aside the strongest region and it stands
+    # alone. Measured when written: both found in 3 of seeds 0 to 3, the box in none of
+    # them without the set-aside graph
+    both, box_without = 0, 0
+    for seed in range(4):
+        sim = simulate("two", 20_000, seed=seed)
+        X = _standardise(sim.X)
+        losses = binary_losses(sim.y, sim.score, sim.threshold)
+        discovery = split_halves(sim.y.size, sim.y, seed)
+        graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=seed)
+        island, box = sim.parts
+        for kept, with_set_aside in ((graphs, True), (graphs[:3], False)):
+            assert with_set_aside or "set_aside" not in [g.name for g in kept]
+            found = merge_confirmed(
+                find_weak_regions(kept, losses, discovery, random_state=seed),
+                losses=losses,
+                discovery=discovery,
+            )
+            if with_set_aside:
+                both += _best_jaccard(found, island) >= 0.5 and _best_jaccard(found, box) >= 0.5
+            else:
+                box_without += _best_jaccard(found, box) >= 0.5
+    assert both >= 3, both
+    assert box_without <= 1, box_without
+
+
+@pytest.mark.slow
 @pytest.mark.parametrize(
     "shape",
     [pytest.param("calibrated", marks=SECOND), pytest.param("inflated", marks=FIRST)],

@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from sklearn.neighbors import NearestNeighbors
 
 from topoaudit.audit.search import smoothed_excess
@@ -29,3 +30,37 @@ def test_smoother_is_the_mean_excess_of_the_k_nearest_discovery_rows():
     own = discovery
     expected = np.where(own, excess[idx[:, 1:]].mean(axis=1), excess[idx[:, :k]].mean(axis=1))
     np.testing.assert_allclose(got, expected, rtol=1e-12, atol=1e-12)
+
+
+def test_the_region_set_aside_is_the_strongest_level_set_by_kulldorffs_statistic():
+    # reference: Kulldorff's (1997) Poisson log-likelihood ratio, computed here from each
+    # candidate's own sums; the region set aside is the error-aware graph's candidate
+    # (its upper level sets on the discovery half) with the largest one
+    from reference_checks.planted_pockets import simulate
+    from topoaudit.audit.search import SearchSettings, search_graphs, strongest_rows
+    from topoaudit.audit.weak import _level_sets, _scaled, binary_losses, split_halves
+
+    sim = simulate("island", 6000, n_features=6, seed=4)
+    X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
+    loss = binary_losses(sim.y, sim.score, sim.threshold)[0]
+    discovery = split_halves(sim.y.size, sim.y, 4)
+    aware = next(
+        g
+        for g in search_graphs(X, [loss], discovery, SearchSettings(), random_state=4)
+        if g.name == "error_aware"
+    )
+    got = strongest_rows(aware.graph, aware.lens, loss, discovery)
+    obs, exp, total = _scaled(loss, discovery)
+
+    def kulldorff(rows: np.ndarray) -> float:
+        o, e = obs[rows].sum(), exp[rows].sum()
+        return o * np.log(o / e) + (total - o) * np.log((total - o) / (total - e))
+
+    levels = _level_sets(aware.graph, aware.lens, obs, exp, total, discovery, max_share=0.3)
+    assert levels
+    best = max(kulldorff(f.rows) for f in levels)
+    rows = np.flatnonzero(got)
+    assert not (got & ~discovery).any() and rows.size <= 0.3 * discovery.sum()
+    assert kulldorff(rows) == pytest.approx(best, rel=1e-12)
+    # the planted island: most of what is set aside lies in it
+    assert sim.pocket[rows].mean() >= 0.8

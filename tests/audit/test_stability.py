@@ -13,7 +13,7 @@ import pytest
 
 from reference_checks.planted_pockets import simulate
 from topoaudit.audit.search import ErrorLens, SearchSettings, search_graphs
-from topoaudit.audit.stability import _subsample_rows, stability_runs
+from topoaudit.audit.stability import _pack, _Plan, _rerun, _subsample_rows, stability_runs
 from topoaudit.audit.weak import binary_losses, find_weak_regions, merge_confirmed, split_halves
 from topoaudit.mapper.executor import ProcessExecutor
 
@@ -55,6 +55,30 @@ def test_reruns_that_reuse_the_search_find_what_reruns_from_scratch_find(searche
     assert [r.kind for r in scratch] == ["grid", "grid", "subsample"]
     assert any(any(r.found) for r in scratch)
     assert reused == scratch
+
+
+def test_a_rerun_at_the_search_settings_with_its_lens_is_the_search_set_aside_graph_included():
+    # two pockets in different features (seed 2: the second one is confirmed in the
+    # set-aside graph alone); a rerun reusing the search's lens, at the search's settings
+    # on every row, must confirm the very regions the search confirmed
+    sim = simulate("two", 20_000, seed=2)
+    X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
+    losses = binary_losses(sim.y, sim.score, sim.threshold)
+    discovery = split_halves(sim.y.size, sim.y, 2)
+    graphs = search_graphs(X, losses, discovery, SearchSettings(), random_state=2)
+    weak = merge_confirmed(
+        find_weak_regions(graphs, losses, discovery, random_state=2),
+        losses=losses,
+        discovery=discovery,
+    )
+    assert "set_aside" in [f.graph for f in weak]
+    lens = ErrorLens.of(graphs)
+    plan = _Plan("search", "grid", SearchSettings(), None)
+    known = (lens.weights, lens.importance, lens.direction, lens.rest_weights)
+    kinds = tuple((x.kind, bool(x.counts)) for x in losses)
+    shared = _pack(X, losses, discovery, lens)
+    rerun = _rerun(shared, X.shape[1], kinds, plan, known, 0.05, 30, 2)
+    assert [r.tolist() for r in rerun] == [f.rows.tolist() for f in weak]
 
 
 def test_each_subsample_draws_the_rows_of_one_seeded_sequence():

@@ -1,6 +1,6 @@
 """The graphs searched for weak regions, and the lens of the error-aware one.
 
-Three graphs are searched; each finding names the one it came from.
+Up to four graphs are searched; each finding names the one it came from.
 
 ``features``
     The graph of the standardised features alone (PCA filter, balanced cover). Candidates
@@ -12,6 +12,16 @@ Three graphs are searched; each finding names the one it came from.
     predict that excess. Candidates are its upper level sets: for each interval from the
     top, the connected components of the nodes at or above it, each trimmed row by row to
     the lens level that maximises the scan statistic on the discovery half.
+
+``set_aside``
+    The error-aware graph again, with the discovery rows of its strongest region set
+    aside (a secondary search, as Zhang, Assunção and Kulldorff, 2010, judge secondary
+    clusters with the primary removed): the features that predict the excess among the
+    other discovery rows are chosen again, and the lens is smoothed in their space over
+    those rows. A second pocket in other features than the first is blurred in the
+    error-aware graph, whose space holds the features of both; here it stands alone.
+    Built only when the features chosen differ from the error-aware graph's (and some are
+    chosen); its candidates are upper level sets.
 
 ``slab``
     A graph along one direction across the features, the one along which the discovery
@@ -34,6 +44,11 @@ The error-aware lens is made in three steps, all from discovery labels only:
    discovery rows, itself excluded (a nearest-neighbour smoother);
 3. confirmation rows get the same smoother over discovery rows, so no confirmation label
    ever shapes the graph, and the confirmation test stays a test on fresh rows.
+
+The strongest region set aside for the ``set_aside`` graph is the error-aware graph's
+strongest candidate on the discovery half (the upper level set with the largest scan
+statistic, at most ``SET_ASIDE_SHARE`` of the half), at the search's own cover: reruns of
+the search at other covers reuse the set-aside lens with the rest of the lens.
 
 Both graphs use :class:`~topoaudit.mapper.clustering.KMeansMesh` inside each cover
 element, so nodes hold about ``node_rows`` rows: on continuous data a density clusterer
@@ -67,6 +82,7 @@ __all__ = [
     "relevance_weights",
     "search_graphs",
     "smoothed_excess",
+    "strongest_rows",
 ]
 
 #: rows queried at once by the neighbour smoother
@@ -75,6 +91,14 @@ _BLOCK = 4096
 #: (in standard deviations) are one node: a slab's rows stay together while its lens
 #: wavers, and places apart along the direction stay apart
 SLAB_GAP = 0.25
+#: the largest share of the discovery half the strongest region set aside may hold (the
+#: search's own bound on a candidate, ``max_share`` of
+#: :func:`~topoaudit.audit.weak.find_weak_regions`)
+SET_ASIDE_SHARE = 0.3
+#: shuffles of each feature per held-out fold when the features are chosen again without
+#: the strongest region: 25 draws per feature over five folds instead of 100, which
+#: quarters the cost of the second choice (a fifth of the search's time on wide data)
+SET_ASIDE_REPEATS = 5
 
 
 @dataclass(frozen=True)
@@ -147,12 +171,15 @@ def relevance_weights(
     *,
     folds: int = 5,
     max_rows: int = 20_000,
+    n_repeats: int = 20,
     random_state: int = 0,
 ) -> tuple[np.ndarray, np.ndarray]:
     """0/1 weight per feature (see module docstring, step 1) and the mean importances.
 
     The excess is computed on the whole discovery half; the importance model sees a seeded
     sample of at most ``max_rows`` of its rows, which bounds the cost on large data.
+    ``n_repeats``: the shuffles of each feature on each held-out fold (predicting them is
+    most of the cost on wide data).
     """
     d_all = np.flatnonzero(discovery)
     excess_all = _excess(loss, d_all)
@@ -174,7 +201,7 @@ def relevance_weights(
         ).fit(X[d[train]], excess[train])
         draws.append(
             permutation_drops(
-                model, X[d[test]], excess[test], n_repeats=20, random_state=random_state
+                model, X[d[test]], excess[test], n_repeats=n_repeats, random_state=random_state
             )
         )
     draws_all = np.hstack(draws)
@@ -261,16 +288,26 @@ class ErrorLens:
     #: lens (each row's smoothed excess along it); None: no slab graph
     direction: np.ndarray | None = None
     along: np.ndarray | None = None
+    #: the set-aside graph's 0/1 feature weights and lens; None: no set-aside graph
+    rest_weights: np.ndarray | None = None
+    rest_values: np.ndarray | None = None
 
     @classmethod
     def of(cls, graphs: list[SearchGraph]) -> ErrorLens:
         """The lens the error-aware graph of ``graphs`` was built on, with the slab
-        graph's direction and lens when there is one."""
-        aware = next(g for g in graphs if g.name == "error_aware")
-        slab = next((g for g in graphs if g.name == "slab"), None)
-        if slab is None:
-            return cls(aware.weights, aware.importance, aware.lens)
-        return cls(aware.weights, aware.importance, aware.lens, slab.weights, slab.lens)
+        graph's direction and lens and the set-aside graph's weights and lens when there
+        are such graphs."""
+        by_name = {g.name: g for g in graphs}
+        aware, slab, rest = by_name["error_aware"], by_name.get("slab"), by_name.get("set_aside")
+        return cls(
+            aware.weights,
+            aware.importance,
+            aware.lens,
+            None if slab is None else slab.weights,
+            None if slab is None else slab.lens,
+            None if rest is None else rest.weights,
+            None if rest is None else rest.lens,
+        )
 
 
 def _total(losses: list[Losses]) -> Losses:
@@ -300,7 +337,86 @@ def error_lens(
     values = smoothed_excess(Z, total, discovery, k, executor=executor)
     direction, _ = slab_direction(X, total, discovery, random_state=random_state)
     along = smoothed_excess(X @ direction[:, None], total, discovery, k, executor=executor)
-    return ErrorLens(weights, importance, values, direction, along)
+    rest_weights, rest_values = _set_aside_lens(
+        X, total, discovery, weights, values, settings, random_state=random_state, executor=executor
+    )
+    return ErrorLens(weights, importance, values, direction, along, rest_weights, rest_values)
+
+
+def strongest_rows(
+    graph: MapperGraph,
+    lens: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    share: float = SET_ASIDE_SHARE,
+) -> np.ndarray:
+    """Mask of the discovery rows of the strongest candidate of a level-set ``graph`` with
+    ``lens`` (the search's upper level sets, :func:`~topoaudit.audit.weak.find_weak_regions`,
+    at most ``share`` of the discovery half); none when no level set holds an excess."""
+    from topoaudit.audit.weak import _level_sets, _pick, _scaled
+
+    obs, exp, total = _scaled(loss, discovery)
+    out = np.zeros(discovery.size, dtype=bool)
+    if total <= 0:
+        return out
+    top = _pick(_level_sets(graph, lens, obs, exp, total, discovery, max_share=share), 1)
+    if top:
+        out[top[0].rows] = True
+    return out
+
+
+def _level_graph(
+    Z: np.ndarray, lens: np.ndarray, settings: SearchSettings, random_state: int
+) -> MapperGraph:
+    """The graph of an error lens over the weighted space ``Z`` (error-aware, set-aside)."""
+    return (
+        MapperBuilder(
+            lens,
+            cover="balanced",
+            n_intervals=settings.lens_intervals,
+            overlap=settings.lens_overlap,
+            clusterer=settings.lens_clusterer,
+            random_state=random_state,
+        )
+        .fit(np.ascontiguousarray(Z))
+        .graph_
+    )
+
+
+def _set_aside_lens(
+    X: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    weights: np.ndarray,
+    values: np.ndarray,
+    settings: SearchSettings,
+    *,
+    random_state: int,
+    executor: Any,
+) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """The set-aside graph's weights and lens (module docstring), or ``(None, None)`` when
+    the features chosen without the strongest region are the error-aware graph's, or none
+    is chosen."""
+    with threadpool_limits(limits=1, user_api="openmp"):
+        graph = _level_graph(X[:, weights > 0], values, settings, random_state)
+    strongest = strongest_rows(graph, values, loss, discovery)
+    rest = discovery & ~strongest
+    if not strongest.any() or rest.sum() < 2 * settings.folds:
+        return None, None
+    with threadpool_limits(limits=1, user_api="openmp"):
+        rest_weights, _ = relevance_weights(
+            X,
+            loss,
+            rest,
+            folds=settings.folds,
+            n_repeats=SET_ASIDE_REPEATS,
+            random_state=random_state,
+        )
+    if (rest_weights > 0).all() or np.array_equal(rest_weights, weights):
+        return None, None
+    Z = np.ascontiguousarray(X[:, rest_weights > 0])
+    k = settings.k(int(rest.sum()))
+    return rest_weights, smoothed_excess(Z, loss, rest, k, executor=executor)
 
 
 def search_graphs(
@@ -313,8 +429,9 @@ def search_graphs(
     lens: ErrorLens | None = None,
     executor: Any = None,
 ) -> list[SearchGraph]:
-    """Build the ``features``, ``error_aware`` and ``slab`` search graphs of standardised
-    ``X`` (the slab graph only when the lens has a direction).
+    """Build the ``features``, ``error_aware``, ``slab`` and ``set_aside`` search graphs of
+    standardised ``X`` (the slab graph only when the lens has a direction, the set-aside
+    graph only when it has a set-aside lens).
 
     ``lens``: the :class:`ErrorLens` of the same rows, losses, halves, folds, neighbours
     and seed, when it is known already (reruns at other covers); computed when None.
@@ -346,19 +463,12 @@ def _search_graphs(
         random_state=random_state,
         n_jobs=executor,
     ).fit(X)
-    aware = MapperBuilder(
-        lens.values,
-        cover="balanced",
-        n_intervals=settings.lens_intervals,
-        overlap=settings.lens_overlap,
-        clusterer=settings.lens_clusterer,
-        random_state=random_state,
-    ).fit(np.ascontiguousarray(X[:, lens.weights > 0]))
+    aware = _level_graph(X[:, lens.weights > 0], lens.values, settings, random_state)
     graphs = [
         SearchGraph("features", features.graph_, "grow"),
         SearchGraph(
             "error_aware",
-            aware.graph_,
+            aware,
             "level",
             lens=lens.values,
             weights=lens.weights,
@@ -376,5 +486,12 @@ def _search_graphs(
         ).fit(np.ascontiguousarray(X @ lens.direction[:, None]))
         graphs.append(
             SearchGraph("slab", slab.graph_, "level", lens=lens.along, weights=lens.direction)
+        )
+    if lens.rest_weights is not None and lens.rest_values is not None:
+        rest = _level_graph(X[:, lens.rest_weights > 0], lens.rest_values, settings, random_state)
+        graphs.append(
+            SearchGraph(
+                "set_aside", rest, "level", lens=lens.rest_values, weights=lens.rest_weights
+            )
         )
     return graphs

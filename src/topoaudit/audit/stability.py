@@ -72,23 +72,25 @@ def _pack(
     X: np.ndarray, losses: Sequence[Losses], discovery: np.ndarray, lens: ErrorLens | None
 ) -> np.ndarray:
     """The rerun tasks' shared array: the features, each loss's observed and expected
-    values, the discovery half (0 or 1), the lens values and the slab graph's lens values
-    (NaN without them)."""
+    values, the discovery half (0 or 1), the lens values, the slab graph's lens values and
+    the set-aside graph's lens values (NaN without them)."""
     columns = [np.asarray(X, dtype=np.float64)]
     for loss in losses:
         columns += [loss.observed[:, None], loss.expected[:, None]]
     missing = np.full(X.shape[0], np.nan)
     lens_values = lens.values if lens is not None else missing
     along = lens.along if lens is not None and lens.along is not None else missing
-    columns += [discovery[:, None], lens_values[:, None], along[:, None]]
+    rest = lens.rest_values if lens is not None and lens.rest_values is not None else missing
+    columns += [discovery[:, None], lens_values[:, None], along[:, None], rest[:, None]]
     return np.hstack(columns).astype(np.float64, copy=False)
 
 
 def _unpack(
     shared: np.ndarray, n_features: int, kinds: Sequence[tuple[str, bool]], rows: Any
-) -> tuple[np.ndarray, list[Losses], np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, list[Losses], np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """The rows ``rows`` (a slice or positions) of :func:`_pack`'s array, as fresh
-    contiguous arrays: features, losses, discovery half, lens values, slab lens values."""
+    contiguous arrays: features, losses, discovery half, lens values, slab lens values,
+    set-aside lens values."""
 
     def column(j: int) -> np.ndarray:
         return np.ascontiguousarray(shared[rows, j])
@@ -98,7 +100,7 @@ def _unpack(
     for kind, counts in kinds:
         losses.append(Losses(kind, column(j), column(j + 1), counts))
         j += 2
-    return X, losses, column(j) > 0.5, column(j + 1), column(j + 2)
+    return X, losses, column(j) > 0.5, column(j + 1), column(j + 2), column(j + 3)
 
 
 def _rerun(
@@ -106,7 +108,7 @@ def _rerun(
     n_features: int,
     kinds: tuple[tuple[str, bool], ...],
     plan: _Plan,
-    lens: tuple[np.ndarray, np.ndarray, np.ndarray | None] | None,
+    lens: tuple[np.ndarray, np.ndarray, np.ndarray | None, np.ndarray | None] | None,
     fdr: float,
     min_rows: int,
     random_state: int,
@@ -118,15 +120,21 @@ def _rerun(
     n_rows = shared.shape[0]
     if plan.subsample is None:
         rows = np.arange(n_rows)
-        X, losses, discovery, values, along = _unpack(shared, n_features, kinds, slice(None))
+        X, losses, discovery, values, along, rest = _unpack(shared, n_features, kinds, slice(None))
     else:
         rows = _subsample_rows(n_rows, plan.subsample, random_state)
-        X, losses, discovery, values, along = _unpack(shared, n_features, kinds, rows)
+        X, losses, discovery, values, along, rest = _unpack(shared, n_features, kinds, rows)
     known = None
     if lens is not None:
-        direction = lens[2]
+        direction, rest_weights = lens[2], lens[3]
         known = ErrorLens(
-            lens[0], lens[1], values, direction, along if direction is not None else None
+            lens[0],
+            lens[1],
+            values,
+            direction,
+            along if direction is not None else None,
+            rest_weights,
+            rest if rest_weights is not None else None,
         )
     with threadpool_limits(limits=1):
         graphs = search_graphs(
@@ -203,7 +211,11 @@ def stability_runs(
     to_run = [p for i, p in enumerate(plans) if i not in known_runs]
     shared = _pack(X, losses, discovery, lens)
     kinds = tuple((x.kind, bool(x.counts)) for x in losses)
-    known = (lens.weights, lens.importance, lens.direction) if lens is not None else None
+    known = (
+        (lens.weights, lens.importance, lens.direction, lens.rest_weights)
+        if lens is not None
+        else None
+    )
     tasks = [
         (
             X.shape[1],

@@ -51,6 +51,7 @@ GRAPH_WORDS = {
     "features": "feature graph",
     "error_aware": "error-aware graph",
     "slab": "graph along one direction across the features",
+    "set_aside": "error-aware graph with its strongest region set aside",
 }
 #: a weak region holding at least this share of all rows is called broad
 BROAD_SHARE = 0.25
