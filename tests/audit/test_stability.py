@@ -13,7 +13,14 @@ import pytest
 
 from reference_checks.planted_pockets import simulate
 from topoaudit.audit.search import ErrorLens, SearchSettings, search_graphs
-from topoaudit.audit.stability import _pack, _Plan, _rerun, _subsample_rows, stability_runs
+from topoaudit.audit.stability import (
+    _known,
+    _pack,
+    _Plan,
+    _rerun,
+    _subsample_rows,
+    stability_runs,
+)
 from topoaudit.audit.weak import binary_losses, find_weak_regions, merge_confirmed, split_halves
 from topoaudit.mapper.executor import ProcessExecutor
 
@@ -74,7 +81,7 @@ def test_a_rerun_at_the_search_settings_with_its_lens_is_the_search_set_aside_gr
     assert "set_aside" in [f.graph for f in weak]
     lens = ErrorLens.of(graphs)
     plan = _Plan("search", "grid", SearchSettings(), None)
-    known = (lens.weights, lens.importance, lens.direction, lens.rest_weights)
+    known = _known(lens)
     kinds = tuple((x.kind, bool(x.counts)) for x in losses)
     shared = _pack(X, losses, discovery, lens)
     rerun = _rerun(shared, X.shape[1], kinds, plan, known, 0.05, 30, 2)

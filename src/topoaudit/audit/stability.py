@@ -147,6 +147,16 @@ def _rerun(
     return [rows[f.rows] for f in merged]
 
 
+def _known(
+    lens: ErrorLens | None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None, np.ndarray | None] | None:
+    """What a rerun reuses of the search's lens besides its values (which travel in the
+    shared array): the weights, importances, slab direction and set-aside weights."""
+    if lens is None:
+        return None
+    return lens.weights, lens.importance, lens.direction, lens.rest_weights
+
+
 def _plans(
     settings: SearchSettings,
     interval_offsets: Sequence[int],
@@ -211,11 +221,7 @@ def stability_runs(
     to_run = [p for i, p in enumerate(plans) if i not in known_runs]
     shared = _pack(X, losses, discovery, lens)
     kinds = tuple((x.kind, bool(x.counts)) for x in losses)
-    known = (
-        (lens.weights, lens.importance, lens.direction, lens.rest_weights)
-        if lens is not None
-        else None
-    )
+    known = _known(lens)
     tasks = [
         (
             X.shape[1],
