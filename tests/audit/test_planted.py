@@ -34,7 +34,7 @@ def _confirmed(sim, seed: int):
     return merge_confirmed(found, losses=losses, discovery=discovery)
 
 
-#: under pytest-xdist (make test: --dist loadgroup) the five long simulations run in two
+#: under pytest-xdist (make test: --dist loadgroup) the long simulations run in two
 #: groups of about equal length, one per worker, started before the short tests
 FIRST, SECOND = pytest.mark.xdist_group("planted-1"), pytest.mark.xdist_group("planted-2")
 
@@ -79,7 +79,7 @@ def test_thin_band_across_three_features_is_found_by_the_slab_graph():
 
 
 @pytest.mark.slow
-@FIRST
+@SECOND
 def test_two_pockets_in_different_features_are_both_found_with_the_set_aside_graph():
     # the second pocket (a box in features 0 and 5) is blurred in the error-aware graph,
     # whose features also hold the island's; set aside the strongest region and it stands

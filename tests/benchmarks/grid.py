@@ -25,7 +25,8 @@ confirmation test gives the pocket itself (what the search would get had it prop
 exactly the pocket): a pocket missed with a small one is missed by the search, not the
 test. Results go to ``grid_results.jsonl`` (one line per
 setting, so a run can be resumed with ``--resume``), ``GRID_RESULTS.md`` and two charts
-(``--report`` writes the report of the results on disk again, without running anything).
+(``--report`` writes the report of the results on disk again, without running anything;
+``--executor tcp://HOST:PORT`` runs the settings on a Dask cluster instead, one task each).
 Nothing here asserts anything: the figures are reported as measured.
 """
 
