@@ -265,8 +265,9 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument(
         "--executor",
         metavar="tcp://HOST:PORT",
-        help="run the settings on this Dask cluster instead (workers started in the "
-        "repository root with PYTHONPATH=.), in chunks whose results are kept as each ends",
+        help="run the settings on this Dask cluster instead (scheduler and workers started "
+        "in the repository root with PYTHONPATH=.), in chunks whose results are kept as each "
+        "ends",
     )
     parser.add_argument(
         "--report", action="store_true", help="run nothing: write the report of the results"
