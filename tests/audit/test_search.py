@@ -64,3 +64,23 @@ def test_the_region_set_aside_is_the_strongest_level_set_by_kulldorffs_statistic
     assert kulldorff(rows) == pytest.approx(best, rel=1e-12)
     # the planted island: most of what is set aside lies in it
     assert sim.pocket[rows].mean() >= 0.8
+
+
+def test_no_region_is_set_aside_when_the_error_aware_graph_chose_every_feature():
+    # every feature chosen means none stood out (kept_features' fallback): the search sets
+    # nothing aside and builds no set-aside graph, whatever the strongest level set holds
+    from reference_checks.planted_pockets import simulate
+    from topoaudit.audit.search import SearchSettings, _level_graph, _set_aside_lens
+    from topoaudit.audit.weak import binary_losses, split_halves
+
+    sim = simulate("island", 6000, n_features=6, seed=4)
+    X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
+    loss = binary_losses(sim.y, sim.score, sim.threshold)[0]
+    discovery = split_halves(sim.y.size, sim.y, 4)
+    values = np.where(sim.pocket, 1.0, 0.0) + 0.01 * X[:, 0]
+    settings = SearchSettings()
+    aware = _level_graph(X, values, settings, 4)
+    every = np.ones(6)
+    assert _set_aside_lens(
+        X, loss, discovery, every, values, aware, settings, random_state=4, executor=None
+    ) == (None, None)

@@ -27,8 +27,9 @@ Up to four graphs are searched; each finding names the one it came from.
     other discovery rows are chosen again, and the lens is smoothed in their space over
     those rows. A second pocket in other features than the first is blurred in the
     error-aware graph, whose space holds the features of both; here it stands alone.
-    Built only when the features chosen differ from the error-aware graph's (and some are
-    chosen); its candidates are upper level sets.
+    Built only when the error-aware graph chose some features but not all (with every
+    feature, none stood out: there is no region to set aside), and the features chosen
+    again differ from its own (and some are chosen); its candidates are upper level sets.
 
 The error-aware lens is made in three steps, all from discovery labels only:
 
@@ -328,11 +329,48 @@ def error_lens(
 ) -> ErrorLens:
     """The lens of the error-aware graph of standardised ``X`` (see module docstring);
     its neighbour smoother runs on ``executor`` (serial when None)."""
-    total = _total(losses)
+    return _error_lens(
+        X, losses, discovery, settings, random_state=random_state, executor=executor
+    )[0]
+
+
+def _chosen_features(
+    X: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    settings: SearchSettings,
+    *,
+    n_repeats: int,
+    random_state: int,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Step 1 over the ``discovery`` rows, on one OpenMP thread: the 0/1 weights and the
+    mean importances."""
     with threadpool_limits(limits=1, user_api="openmp"):
-        weights, importance = relevance_weights(
-            X, total, discovery, folds=settings.folds, random_state=random_state
+        return relevance_weights(
+            X,
+            loss,
+            discovery,
+            folds=settings.folds,
+            n_repeats=n_repeats,
+            random_state=random_state,
         )
+
+
+def _error_lens(
+    X: np.ndarray,
+    losses: list[Losses],
+    discovery: np.ndarray,
+    settings: SearchSettings,
+    *,
+    random_state: int,
+    executor: Any,
+) -> tuple[ErrorLens, MapperGraph]:
+    """:func:`error_lens`, and the error-aware graph it built to find the region set
+    aside (the search reuses it)."""
+    total = _total(losses)
+    weights, importance = _chosen_features(
+        X, total, discovery, settings, n_repeats=20, random_state=random_state
+    )
     # the weights are 0 or 1: the weighted space is the kept columns, which keeps the
     # neighbour search low-dimensional (tree indexes are fast there)
     Z = np.ascontiguousarray(X[:, weights > 0])
@@ -340,10 +378,14 @@ def error_lens(
     values = smoothed_excess(Z, total, discovery, k, executor=executor)
     direction, _ = slab_direction(X, total, discovery, random_state=random_state)
     along = smoothed_excess(X @ direction[:, None], total, discovery, k, executor=executor)
+    with threadpool_limits(limits=1, user_api="openmp"):
+        aware = _level_graph(Z, values, settings, random_state)
     rest_weights, rest_values = _set_aside_lens(
-        X, total, discovery, weights, values, settings, random_state=random_state, executor=executor
-    )
-    return ErrorLens(weights, importance, values, direction, along, rest_weights, rest_values)
+        X, total, discovery, weights, values, aware, settings,
+        random_state=random_state, executor=executor,
+    )  # fmt: skip
+    lens = ErrorLens(weights, importance, values, direction, along, rest_weights, rest_values)
+    return lens, aware
 
 
 def strongest_rows(
@@ -392,29 +434,25 @@ def _set_aside_lens(
     discovery: np.ndarray,
     weights: np.ndarray,
     values: np.ndarray,
+    aware: MapperGraph,
     settings: SearchSettings,
     *,
     random_state: int,
     executor: Any,
 ) -> tuple[np.ndarray | None, np.ndarray | None]:
     """The set-aside graph's weights and lens (module docstring), or ``(None, None)`` when
-    the features chosen without the strongest region are the error-aware graph's, or none
-    is chosen."""
-    with threadpool_limits(limits=1, user_api="openmp"):
-        graph = _level_graph(X[:, weights > 0], values, settings, random_state)
-    strongest = strongest_rows(graph, values, loss, discovery)
+    the error-aware graph (``aware``, of lens ``values``) chose every feature (none stood
+    out), or the features chosen without its strongest region are its own, or none is
+    chosen."""
+    if (weights > 0).all():
+        return None, None
+    strongest = strongest_rows(aware, values, loss, discovery)
     rest = discovery & ~strongest
     if not strongest.any() or rest.sum() < 2 * settings.folds:
         return None, None
-    with threadpool_limits(limits=1, user_api="openmp"):
-        rest_weights, _ = relevance_weights(
-            X,
-            loss,
-            rest,
-            folds=settings.folds,
-            n_repeats=SET_ASIDE_REPEATS,
-            random_state=random_state,
-        )
+    rest_weights, _ = _chosen_features(
+        X, loss, rest, settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
+    )
     if (rest_weights > 0).all() or np.array_equal(rest_weights, weights):
         return None, None
     Z = np.ascontiguousarray(X[:, rest_weights > 0])
@@ -445,17 +483,28 @@ def search_graphs(
     rows, thread start-up costs more than a second thread gains, and one thread cannot
     oversubscribe the cores when other work runs beside it.
     """
+    aware = None
     if lens is None:
-        lens = error_lens(
+        lens, aware = _error_lens(
             X, losses, discovery, settings, random_state=random_state, executor=executor
         )
     with threadpool_limits(limits=1, user_api="openmp"):
-        return _search_graphs(X, lens, settings, random_state=random_state, executor=executor)
+        return _search_graphs(
+            X, lens, settings, random_state=random_state, executor=executor, aware=aware
+        )
 
 
 def _search_graphs(
-    X: np.ndarray, lens: ErrorLens, settings: SearchSettings, *, random_state: int, executor: Any
+    X: np.ndarray,
+    lens: ErrorLens,
+    settings: SearchSettings,
+    *,
+    random_state: int,
+    executor: Any,
+    aware: MapperGraph | None = None,
 ) -> list[SearchGraph]:
+    """The graphs of :func:`search_graphs`; ``aware``: the error-aware graph when the
+    lens was just made (it is built to find the region set aside), else built here."""
     mesh = KMeansMesh(node_rows=settings.node_rows, random_state=random_state)
     features = MapperBuilder(
         "pca",
@@ -466,7 +515,8 @@ def _search_graphs(
         random_state=random_state,
         n_jobs=executor,
     ).fit(X)
-    aware = _level_graph(X[:, lens.weights > 0], lens.values, settings, random_state)
+    if aware is None:
+        aware = _level_graph(X[:, lens.weights > 0], lens.values, settings, random_state)
     graphs = [
         SearchGraph("features", features.graph_, "grow"),
         SearchGraph(
