@@ -64,7 +64,7 @@ OTHERS = (
     ),
     (
         HERE / "grid_results_slab.jsonl",
-        "before that: every confirmed region kept, even one that holds no excess "
+        "an earlier run: every confirmed region kept, even one that holds no excess "
         "outside a stronger region it overlaps",
     ),
     (
