@@ -381,9 +381,16 @@ def _error_lens(
     with threadpool_limits(limits=1, user_api="openmp"):
         aware = _level_graph(Z, values, settings, random_state)
     rest_weights, rest_values = _set_aside_lens(
-        X, total, discovery, weights, values, aware, settings,
-        random_state=random_state, executor=executor,
-    )  # fmt: skip
+        X,
+        total,
+        discovery,
+        weights,
+        values,
+        aware,
+        settings,
+        random_state=random_state,
+        executor=executor,
+    )
     lens = ErrorLens(weights, importance, values, direction, along, rest_weights, rest_values)
     return lens, aware
 
