@@ -53,13 +53,17 @@ RESULTS = HERE / "grid_results.jsonl"
 #: categorical family)
 OTHERS = (
     (
+        HERE / "grid_results_unrefined.jsonl",
+        "the run before: the error-aware lens not refined inside its strongest region",
+    ),
+    (
         HERE / "grid_results_four_graphs.jsonl",
-        "the run before: the error-aware graph built twice, and a region set aside even when "
-        "the error-aware graph chose every feature",
+        "the run before that: the error-aware graph built twice, and a region set aside even "
+        "when the error-aware graph chose every feature",
     ),
     (
         HERE / "grid_results_three_graphs.jsonl",
-        "the run before that: three search graphs, without the error-aware graph with its "
+        "an earlier run: three search graphs, without the error-aware graph with its "
         "strongest region set aside",
     ),
     (
