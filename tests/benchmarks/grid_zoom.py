@@ -1,4 +1,9 @@
-"""An experiment, not yet part of the search: search a candidate region again, inside it.
+"""An experiment, not part of the search: search a candidate region again, inside it.
+
+The search itself now refines the error-aware lens inside its strongest candidate (step 4
+of :mod:`topoaudit.audit.search`: the features that matter there join, and the lens is
+smoothed again over all rows); this zoom instead keeps to the candidate's own rows and
+tries each of the three strongest candidates.
 
 Run ``python -m tests.benchmarks.grid_zoom [family size strength rows features seed]``
 from the repository root (by hand; not part of ``make bench``). The grid's misses among

@@ -39,6 +39,7 @@ __all__ = [
     "carrying_features",
     "hessian_directions",
     "slab_direction",
+    "slab_inputs",
     "slab_statistic",
 ]
 
@@ -126,6 +127,23 @@ def _refine(
     return w
 
 
+def slab_inputs(
+    X: np.ndarray, loss: Losses, discovery: np.ndarray, max_rows: int, random_state: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """What the climb works on: the centred features, observed and rescaled expected loss
+    of at most ``max_rows`` discovery rows (a seeded sample)."""
+    d = np.flatnonzero(discovery)
+    rng = np.random.default_rng([random_state, 47])
+    if d.size > max_rows:
+        d = np.sort(rng.choice(d, size=max_rows, replace=False))
+    observed, expected = loss.observed[d], loss.expected[d]
+    total_exp = float(expected.sum())
+    if total_exp > 0:
+        expected = expected * float(observed.sum()) / total_exp
+    Xd = np.asarray(X[d], dtype=np.float64)
+    return Xd - Xd.mean(axis=0), observed, expected
+
+
 def slab_direction(
     X: np.ndarray,
     loss: Losses,
@@ -139,16 +157,7 @@ def slab_direction(
 
     At most ``max_rows`` discovery rows (a seeded sample) are used, which bounds the cost
     of each step on large data."""
-    d = np.flatnonzero(discovery)
-    rng = np.random.default_rng([random_state, 47])
-    if d.size > max_rows:
-        d = np.sort(rng.choice(d, size=max_rows, replace=False))
-    observed, expected = loss.observed[d], loss.expected[d]
-    total_exp = float(expected.sum())
-    if total_exp > 0:
-        expected = expected * float(observed.sum()) / total_exp
-    Xd = np.asarray(X[d], dtype=np.float64)
-    Xd = Xd - Xd.mean(axis=0)
+    Xd, observed, expected = slab_inputs(X, loss, discovery, max_rows, random_state)
     r = observed - expected
     _, vectors = hessian_directions(Xd, r)
     p = Xd.shape[1]
