@@ -170,3 +170,36 @@ def test_the_lens_is_not_refined_when_every_feature_was_chosen_or_its_region_is_
     )
     assert 0 < strongest_rows(small_graph, small, loss, discovery).sum() < REFINE_MIN_ROWS
     assert all(a is b for a, b in zip(got, (weights, small, small_graph), strict=True))
+
+
+def test_a_pocket_whose_rows_err_alike_is_not_split_by_what_the_scores_promised():
+    # an island (features 3 and 4) whose rows all err with probability 0.45, however
+    # sure the scores were: inside it the excess still varies with the promise (features
+    # 0 to 2), but the observed loss does not, so the lens is not refined into pieces
+    # along the scores. Planted pocket: common practice in simulation studies, no source.
+    from reference_checks.planted_pockets import simulate
+    from topoaudit.audit.search import (
+        SearchSettings,
+        _level_graph,
+        _refined_lens,
+        smoothed_excess,
+    )
+    from topoaudit.audit.weak import binary_losses, split_halves
+
+    sim = simulate("island", 20_000, n_features=8, seed=5)
+    rng = np.random.default_rng(5)
+    q = np.where(sim.pocket, 0.45, np.minimum(sim.score, 1 - sim.score))
+    decision = sim.score >= sim.threshold
+    y = np.where(rng.uniform(size=q.size) < q, ~decision, decision).astype(np.int64)
+    X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
+    loss = binary_losses(y, sim.score, sim.threshold)[0]
+    discovery = split_halves(y.size, y, 5)
+    settings = SearchSettings()
+    weights = np.array([0.0, 0, 0, 1, 1, 0, 0, 0])
+    values = smoothed_excess(X[:, weights > 0], loss, discovery, settings.k(int(discovery.sum())))
+    aware = _level_graph(X[:, weights > 0], values, settings, 5)
+    got = _refined_lens(
+        X, loss, discovery, weights, values, aware, settings, random_state=5, executor=None
+    )
+    assert got[0].tolist() == weights.tolist()
+    assert got[1] is values and got[2] is aware

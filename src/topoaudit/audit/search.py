@@ -49,8 +49,13 @@ The error-aware lens is made in three steps, all from discovery labels only:
    third feature of a thin arc whose other two carry the excess over all rows) is lost
    in step 1, and the lens then smooths the pocket in a projection that blurs it into
    its surroundings. The relevance model is fitted again on the discovery rows of the
-   error-aware graph's strongest candidate (at least ``REFINE_MIN_ROWS`` of them), and
-   when it keeps features that step 1 did not (and not every feature), the lens is
+   error-aware graph's strongest candidate (at least ``REFINE_MIN_ROWS`` of them), to
+   their observed loss alone (centred), not their excess: inside a pocket whose rows err
+   alike, the excess still varies with what the scores promised, and the features behind
+   the scores would split a uniform pocket by it (measured on the grid's islands, which
+   this split into two to four regions); the observed loss varies there only where some
+   rows err more often than others. When it keeps features that step 1 did not (and not
+   every feature), the lens is
    smoothed again in the space of both, with ``k`` a ``REFINE_SHARE``-th of that
    region's discovery rows (at least 30, at most the search's own ``k``, so a pocket
    smaller than ``k`` rows is not averaged away). The refined lens replaces the first
@@ -490,8 +495,10 @@ def _refined_lens(
     inside = int(strongest.sum())
     if inside < REFINE_MIN_ROWS:
         return weights, values, aware
+    # inside the region, the observed loss alone (centred) is the response: see step 4
+    observed = Losses(loss.kind, loss.observed, np.ones_like(loss.expected), loss.counts)
     local, _ = _chosen_features(
-        X, loss, strongest, settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
+        X, observed, strongest, settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
     )
     joined = np.maximum(weights, local)
     if (local > 0).all() or np.array_equal(joined, weights) or (joined > 0).all():
