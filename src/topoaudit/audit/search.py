@@ -55,12 +55,12 @@ The error-aware lens is made in three steps, all from discovery labels only:
    the scores would split a uniform pocket by it (measured on the grid's islands, which
    this split into two to four regions); the observed loss varies there only where some
    rows err more often than others. When it keeps features that step 1 did not (and not
-   every feature), the lens is
-   smoothed again in the space of both, with ``k`` a ``REFINE_SHARE``-th of that
-   region's discovery rows (at least 30, at most the search's own ``k``, so a pocket
-   smaller than ``k`` rows is not averaged away). The refined lens replaces the first
-   only when its own strongest candidate has a larger scan statistic on the discovery
-   half than the first's; the confirmation half never takes part.
+   every feature), the lens is smoothed again in the space of both, with ``k`` a
+   ``REFINE_SHARE``-th of that region's discovery rows (at least 30, at most the
+   search's own ``k``, so a pocket smaller than ``k`` rows is not averaged away). The
+   refined lens replaces the first only when its own strongest candidate has a larger
+   scan statistic on the discovery half than the first's; the confirmation half never
+   takes part.
 
 The strongest region set aside for the ``set_aside`` graph is the error-aware graph's
 strongest candidate on the discovery half (the upper level set with the largest scan
