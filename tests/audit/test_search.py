@@ -66,12 +66,21 @@ def test_the_region_set_aside_is_the_strongest_level_set_by_kulldorffs_statistic
     assert sim.pocket[rows].mean() >= 0.8
 
 
-def test_no_region_is_set_aside_when_the_error_aware_graph_chose_every_feature():
-    # every feature chosen means none stood out (kept_features' fallback): the search sets
-    # nothing aside and builds no set-aside graph, whatever the strongest level set holds
+def test_nothing_is_refined_or_set_aside_when_the_error_aware_graph_chose_every_feature(
+    monkeypatch,
+):
+    # every feature chosen means none stood out (kept_features' fallback): the search
+    # neither refines the lens nor sets a region aside, whatever the strongest level set
+    # holds, and fits no further relevance model to find that out
     from reference_checks.planted_pockets import simulate
-    from topoaudit.audit.search import SearchSettings, _level_graph, _set_aside_lens
+    from topoaudit.audit import search
+    from topoaudit.audit.search import SearchSettings, _level_graph, _second_looks
     from topoaudit.audit.weak import binary_losses, split_halves
+
+    def no_fit(*args, **kwargs):
+        raise AssertionError("a relevance model was fitted")
+
+    monkeypatch.setattr(search, "_chosen_features", no_fit)
 
     sim = simulate("island", 6000, n_features=6, seed=4)
     X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
@@ -81,9 +90,21 @@ def test_no_region_is_set_aside_when_the_error_aware_graph_chose_every_feature()
     settings = SearchSettings()
     aware = _level_graph(X, values, settings, 4)
     every = np.ones(6)
-    assert _set_aside_lens(
+    got = _second_looks(
         X, loss, discovery, every, values, aware, settings, random_state=4, executor=None
-    ) == (None, None)
+    )
+    assert got[0] is every and got[1] is values and got[2] is aware
+    assert got[3:] == (None, None)
+
+
+def _aware_lens(X, weights, loss, discovery, settings, seed: int):
+    """The error-aware lens and graph over the columns of forced ``weights`` (as if step
+    1 had chosen them)."""
+    from topoaudit.audit.search import _level_graph
+
+    Z = X[:, weights > 0]
+    values = smoothed_excess(Z, loss, discovery, settings.k(int(discovery.sum())))
+    return values, _level_graph(Z, values, settings, seed)
 
 
 def _curved_search_inputs(seed: int):
@@ -103,22 +124,14 @@ def test_a_feature_that_matters_only_inside_the_strongest_region_joins_the_lens(
     # its strongest region scores higher by Kulldorff's (1997) Poisson log-likelihood
     # ratio (computed here from the region's own sums) and overlaps the arc more
     # (Jaccard index). Planted pocket: common practice in simulation studies, no source.
-    from topoaudit.audit.search import (
-        SearchSettings,
-        _level_graph,
-        _refined_lens,
-        smoothed_excess,
-        strongest_rows,
-    )
+    from topoaudit.audit.search import SearchSettings, _refined_lens, strongest_rows
     from topoaudit.audit.weak import _scaled
 
     sim, X, loss, discovery = _curved_search_inputs(3)
     settings = SearchSettings()
     weights = np.array([1.0, 0, 1, 0, 0, 0, 0, 0])
-    k = settings.k(int(discovery.sum()))
-    values = smoothed_excess(X[:, weights > 0], loss, discovery, k)
-    aware = _level_graph(X[:, weights > 0], values, settings, 3)
-    got_w, got_v, got_graph = _refined_lens(
+    values, aware = _aware_lens(X, weights, loss, discovery, settings, 3)
+    got_w, got_v, got_graph, got_rows = _refined_lens(
         X, loss, discovery, weights, values, aware, settings, random_state=3, executor=None
     )
     assert got_w[[0, 1, 2]].tolist() == [1.0, 1.0, 1.0]
@@ -134,11 +147,12 @@ def test_a_feature_that_matters_only_inside_the_strongest_region_joins_the_lens(
 
     before = strongest_rows(aware, values, loss, discovery)
     after = strongest_rows(got_graph, got_v, loss, discovery)
+    assert np.array_equal(got_rows, after)
     assert kulldorff(after) > kulldorff(before)
     assert jaccard(after) > jaccard(before) + 0.1
 
 
-def test_the_lens_is_not_refined_when_every_feature_was_chosen_or_its_region_is_small():
+def test_the_lens_is_not_refined_when_its_strongest_region_is_small():
     from topoaudit.audit.search import (
         REFINE_MIN_ROWS,
         SearchSettings,
@@ -149,13 +163,6 @@ def test_the_lens_is_not_refined_when_every_feature_was_chosen_or_its_region_is_
 
     sim, X, loss, discovery = _curved_search_inputs(3)
     settings = SearchSettings()
-    values = np.where(sim.pocket, 1.0, 0.0) + 0.01 * X[:, 0]
-    aware = _level_graph(X, values, settings, 3)
-    every = np.ones(8)
-    got = _refined_lens(
-        X, loss, discovery, every, values, aware, settings, random_state=3, executor=None
-    )
-    assert all(a is b for a, b in zip(got, (every, values, aware), strict=True))
     # a strongest region of fewer than REFINE_MIN_ROWS discovery rows is too small to fit
     # a model in (three here: not even one row per fold); three erring discovery rows of
     # the arc under a lens flat elsewhere are the strongest level set alone
@@ -168,8 +175,10 @@ def test_the_lens_is_not_refined_when_every_feature_was_chosen_or_its_region_is_
     got = _refined_lens(
         X, loss, discovery, weights, small, small_graph, settings, random_state=3, executor=None
     )
-    assert 0 < strongest_rows(small_graph, small, loss, discovery).sum() < REFINE_MIN_ROWS
-    assert all(a is b for a, b in zip(got, (weights, small, small_graph), strict=True))
+    strongest = strongest_rows(small_graph, small, loss, discovery)
+    assert 0 < strongest.sum() < REFINE_MIN_ROWS
+    assert all(a is b for a, b in zip(got[:3], (weights, small, small_graph), strict=True))
+    assert np.array_equal(got[3], strongest)
 
 
 def test_a_pocket_whose_rows_err_alike_is_not_split_by_what_the_scores_promised():
@@ -178,12 +187,7 @@ def test_a_pocket_whose_rows_err_alike_is_not_split_by_what_the_scores_promised(
     # 0 to 2), but the observed loss does not, so the lens is not refined into pieces
     # along the scores. Planted pocket: common practice in simulation studies, no source.
     from reference_checks.planted_pockets import simulate
-    from topoaudit.audit.search import (
-        SearchSettings,
-        _level_graph,
-        _refined_lens,
-        smoothed_excess,
-    )
+    from topoaudit.audit.search import SearchSettings, _refined_lens
     from topoaudit.audit.weak import binary_losses, split_halves
 
     sim = simulate("island", 20_000, n_features=8, seed=5)
@@ -196,8 +200,7 @@ def test_a_pocket_whose_rows_err_alike_is_not_split_by_what_the_scores_promised(
     discovery = split_halves(y.size, y, 5)
     settings = SearchSettings()
     weights = np.array([0.0, 0, 0, 1, 1, 0, 0, 0])
-    values = smoothed_excess(X[:, weights > 0], loss, discovery, settings.k(int(discovery.sum())))
-    aware = _level_graph(X[:, weights > 0], values, settings, 5)
+    values, aware = _aware_lens(X, weights, loss, discovery, settings, 5)
     got = _refined_lens(
         X, loss, discovery, weights, values, aware, settings, random_state=5, executor=None
     )

@@ -87,7 +87,7 @@ from sklearn.neighbors import NearestNeighbors
 from threadpoolctl import threadpool_limits
 
 from topoaudit.audit.oblique import slab_direction
-from topoaudit.audit.weak import Losses
+from topoaudit.audit.weak import Found, Losses
 from topoaudit.mapper.clustering import AutoDBSCAN, KMeansMesh
 from topoaudit.mapper.graph import MapperBuilder, MapperGraph
 
@@ -401,18 +401,7 @@ def _error_lens(
     along = smoothed_excess(X @ direction[:, None], total, discovery, k, executor=executor)
     with threadpool_limits(limits=1, user_api="openmp"):
         aware = _level_graph(Z, values, settings, random_state)
-    weights, values, aware = _refined_lens(
-        X,
-        total,
-        discovery,
-        weights,
-        values,
-        aware,
-        settings,
-        random_state=random_state,
-        executor=executor,
-    )
-    rest_weights, rest_values = _set_aside_lens(
+    weights, values, aware, rest_weights, rest_values = _second_looks(
         X,
         total,
         discovery,
@@ -437,15 +426,31 @@ def strongest_rows(
     """Mask of the discovery rows of the strongest candidate of a level-set ``graph`` with
     ``lens`` (the search's upper level sets, :func:`~topoaudit.audit.weak.find_weak_regions`,
     at most ``share`` of the discovery half); none when no level set holds an excess."""
+    return _rows_of(_strongest(graph, lens, loss, discovery, share), discovery.size)
+
+
+def _strongest(
+    graph: MapperGraph,
+    lens: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    share: float = SET_ASIDE_SHARE,
+) -> Found | None:
+    """The strongest level set of :func:`strongest_rows`, with its scan statistic."""
     from topoaudit.audit.weak import _level_sets, _pick, _scaled
 
     obs, exp, total = _scaled(loss, discovery)
-    out = np.zeros(discovery.size, dtype=bool)
     if total <= 0:
-        return out
+        return None
     top = _pick(_level_sets(graph, lens, obs, exp, total, discovery, max_share=share), 1)
-    if top:
-        out[top[0].rows] = True
+    return top[0] if top else None
+
+
+def _rows_of(found: Found | None, n: int) -> np.ndarray:
+    """Mask of the rows of ``found`` among ``n`` (none when nothing was found)."""
+    out = np.zeros(n, dtype=bool)
+    if found is not None:
+        out[found.rows] = True
     return out
 
 
@@ -467,12 +472,46 @@ def _level_graph(
     )
 
 
-def _strongest_llr(mask: np.ndarray, loss: Losses, discovery: np.ndarray) -> float:
-    """The scan statistic of the discovery rows of ``mask`` (0 when empty)."""
-    from topoaudit.audit.weak import _scaled, scan_statistic
-
-    obs, exp, total = _scaled(loss, discovery)
-    return scan_statistic(float(obs[mask].sum()), float(exp[mask].sum()), total)
+def _second_looks(
+    X: np.ndarray,
+    loss: Losses,
+    discovery: np.ndarray,
+    weights: np.ndarray,
+    values: np.ndarray,
+    aware: MapperGraph,
+    settings: SearchSettings,
+    *,
+    random_state: int,
+    executor: Any,
+) -> tuple[np.ndarray, np.ndarray, MapperGraph, np.ndarray | None, np.ndarray | None]:
+    """Steps 4 and 5 of the error lens: the lens refined inside its strongest region,
+    then the region set aside; the weights, lens and graph (refined or as given) and the
+    set-aside weights and lens. Neither is done when every feature was chosen (none stood
+    out: there is no region to look into)."""
+    if (weights > 0).all():
+        return weights, values, aware, None, None
+    weights, values, aware, strongest = _refined_lens(
+        X,
+        loss,
+        discovery,
+        weights,
+        values,
+        aware,
+        settings,
+        random_state=random_state,
+        executor=executor,
+    )
+    rest_weights, rest_values = _set_aside_lens(
+        X,
+        loss,
+        discovery,
+        weights,
+        strongest,
+        settings,
+        random_state=random_state,
+        executor=executor,
+    )
+    return weights, values, aware, rest_weights, rest_values
 
 
 def _refined_lens(
@@ -486,33 +525,32 @@ def _refined_lens(
     *,
     random_state: int,
     executor: Any,
-) -> tuple[np.ndarray, np.ndarray, MapperGraph]:
+) -> tuple[np.ndarray, np.ndarray, MapperGraph, np.ndarray]:
     """The error-aware lens refined inside its strongest region (module docstring), or
-    the lens as given when nothing is refined."""
-    if (weights > 0).all():
-        return weights, values, aware
-    strongest = strongest_rows(aware, values, loss, discovery)
-    inside = int(strongest.sum())
-    if inside < REFINE_MIN_ROWS:
-        return weights, values, aware
+    the lens as given when nothing is refined, with the mask of the discovery rows of the
+    strongest region of the lens returned."""
+    found = _strongest(aware, values, loss, discovery)
+    kept = (weights, values, aware, _rows_of(found, discovery.size))
+    if found is None or found.rows.size < REFINE_MIN_ROWS:
+        return kept
+    inside = int(found.rows.size)
     # inside the region, the observed loss alone (centred) is the response: see step 4
     observed = Losses(loss.kind, loss.observed, np.ones_like(loss.expected), loss.counts)
     local, _ = _chosen_features(
-        X, observed, strongest, settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
+        X, observed, kept[3], settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
     )
     joined = np.maximum(weights, local)
     if (local > 0).all() or np.array_equal(joined, weights) or (joined > 0).all():
-        return weights, values, aware
+        return kept
     Z = np.ascontiguousarray(X[:, joined > 0])
     k = int(np.clip(inside // REFINE_SHARE, 30, settings.k(int(discovery.sum()))))
     refined = smoothed_excess(Z, loss, discovery, k, executor=executor)
     with threadpool_limits(limits=1, user_api="openmp"):
         graph = _level_graph(Z, refined, settings, random_state)
-    before = _strongest_llr(strongest, loss, discovery)
-    after = _strongest_llr(strongest_rows(graph, refined, loss, discovery), loss, discovery)
-    if after > before:
-        return joined, refined, graph
-    return weights, values, aware
+    better = _strongest(graph, refined, loss, discovery)
+    if better is not None and better.llr > found.llr:
+        return joined, refined, graph, _rows_of(better, discovery.size)
+    return kept
 
 
 def _set_aside_lens(
@@ -520,20 +558,16 @@ def _set_aside_lens(
     loss: Losses,
     discovery: np.ndarray,
     weights: np.ndarray,
-    values: np.ndarray,
-    aware: MapperGraph,
+    strongest: np.ndarray,
     settings: SearchSettings,
     *,
     random_state: int,
     executor: Any,
 ) -> tuple[np.ndarray | None, np.ndarray | None]:
-    """The set-aside graph's weights and lens (module docstring), or ``(None, None)`` when
-    the error-aware graph (``aware``, of lens ``values``) chose every feature (none stood
-    out), or the features chosen without its strongest region are its own, or none is
-    chosen."""
-    if (weights > 0).all():
-        return None, None
-    strongest = strongest_rows(aware, values, loss, discovery)
+    """The set-aside graph's weights and lens (module docstring), without the discovery
+    rows of ``strongest`` (the error-aware graph's strongest region), or ``(None, None)``
+    when there is none, or the features chosen without it are the graph's own (or every
+    feature)."""
     rest = discovery & ~strongest
     if not strongest.any() or rest.sum() < 2 * settings.folds:
         return None, None
