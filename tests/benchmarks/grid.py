@@ -53,12 +53,17 @@ RESULTS = HERE / "grid_results.jsonl"
 #: categorical family)
 OTHERS = (
     (
+        HERE / "grid_results_last_width.jsonl",
+        "the run before: the slab climb returning the direction it reached at its thinnest "
+        "width, not the best of its widths",
+    ),
+    (
         HERE / "grid_results_unrefined.jsonl",
-        "the run before: the error-aware lens not refined inside its strongest region",
+        "the run before that: the error-aware lens not refined inside its strongest region",
     ),
     (
         HERE / "grid_results_four_graphs.jsonl",
-        "the run before that: the error-aware graph built twice, and a region set aside even "
+        "an earlier run: the error-aware graph built twice, and a region set aside even "
         "when the error-aware graph chose every feature",
     ),
     (

@@ -45,8 +45,7 @@ def _directions(X, loss, discovery, band, found, seed: int) -> dict:
     best, best_cos = -1.0, 0.0
     for _ in range(RANDOM_STARTS):
         start = rng.normal(size=X.shape[1])
-        w = _refine(Xd, observed - expected, expected, start / np.linalg.norm(start))
-        value = slab_statistic(Xd @ w, observed, expected)
+        w, value = _refine(Xd, observed, expected, start / np.linalg.norm(start))
         if value > best:
             best, best_cos = value, abs(float(w @ true))
     return dict(

@@ -16,7 +16,10 @@ The direction is found from discovery labels only, in three steps:
    smooth slab score (the Gaussian-weighted excess around a centre over the square root
    of the weighted expected loss), its width narrowing from 0.6 to 0.025 standard
    deviations: a wide slab's score changes slowly with the direction, so the climb is
-   not lost at the start, and the thin ones then sharpen it.
+   not lost at the start, and the thin ones then sharpen it. Widths thinner than the
+   slab chase the noise inside it and can tilt the direction off it, so the climb
+   returns, of its start and the direction it reached at each width, the one with the
+   largest statistic of step 3.
 3. Of the climbed directions, the one with the largest scan statistic (Kulldorff's
    Poisson log-likelihood ratio) of a window of consecutive discovery rows along it,
    over windows of 1% to 15% of the rows, is kept.
@@ -91,13 +94,21 @@ def _centre(t: np.ndarray, r: np.ndarray, v: np.ndarray, h: float) -> float:
 
 
 def _refine(
-    X: np.ndarray, r: np.ndarray, v: np.ndarray, w: np.ndarray, iterations: int = 40
-) -> np.ndarray:
+    X: np.ndarray,
+    observed: np.ndarray,
+    expected: np.ndarray,
+    w: np.ndarray,
+    iterations: int = 40,
+) -> tuple[np.ndarray, float]:
     """Climb the smooth slab score from ``w`` by normalised gradient steps on the unit
     sphere, the width narrowing through :data:`WIDTHS` (a wide slab first, whose score
     varies slowly with the direction, then ever thinner ones); a step is kept only when
     it raises the score, and the step size grows after a kept step and halves after a
-    refused one."""
+    refused one. Returns, of the start and the direction reached at each width, the one
+    with the largest :func:`slab_statistic`, and that statistic: widths thinner than the
+    slab chase the noise inside it and can tilt the direction off the slab."""
+    r, v = observed - expected, expected
+    best_w, best = w, slab_statistic(X @ w, observed, expected)
     for h in WIDTHS:
         eta = 0.2
         t = X @ w
@@ -124,7 +135,10 @@ def _refine(
                 eta *= 0.5
                 if eta < 1e-3:
                     break
-    return w
+        value = slab_statistic(t, observed, expected)
+        if value > best:
+            best_w, best = w, value
+    return best_w, best
 
 
 def slab_inputs(
@@ -158,13 +172,11 @@ def slab_direction(
     At most ``max_rows`` discovery rows (a seeded sample) are used, which bounds the cost
     of each step on large data."""
     Xd, observed, expected = slab_inputs(X, loss, discovery, max_rows, random_state)
-    r = observed - expected
-    _, vectors = hessian_directions(Xd, r)
+    _, vectors = hessian_directions(Xd, observed - expected)
     p = Xd.shape[1]
     best_w, best = vectors[:, 0], -1.0
     for j in sorted({0, min(1, p - 1), min(2, p - 1), p - 1}):
-        w = _refine(Xd, r, expected, vectors[:, j])
-        value = slab_statistic(Xd @ w, observed, expected)
+        w, value = _refine(Xd, observed, expected, vectors[:, j])
         if value > best:
             best_w, best = w, value
     return best_w, best
