@@ -70,31 +70,29 @@ def test_nothing_is_refined_or_set_aside_when_the_error_aware_graph_chose_every_
     monkeypatch,
 ):
     # every feature chosen means none stood out (kept_features' fallback): the search
-    # neither refines the lens nor sets a region aside, whatever the strongest level set
-    # holds, and fits no further relevance model to find that out
+    # neither refines the lens nor sets a region aside, and fits no further relevance
+    # model to find that out (step 1's fit is the only one)
     from reference_checks.planted_pockets import simulate
     from topoaudit.audit import search
-    from topoaudit.audit.search import SearchSettings, _level_graph, _second_looks
     from topoaudit.audit.weak import binary_losses, split_halves
-
-    def no_fit(*args, **kwargs):
-        raise AssertionError("a relevance model was fitted")
-
-    monkeypatch.setattr(search, "_chosen_features", no_fit)
 
     sim = simulate("island", 6000, n_features=6, seed=4)
     X = (sim.X - sim.X.mean(axis=0)) / sim.X.std(axis=0)
     loss = binary_losses(sim.y, sim.score, sim.threshold)[0]
     discovery = split_halves(sim.y.size, sim.y, 4)
-    values = np.where(sim.pocket, 1.0, 0.0) + 0.01 * X[:, 0]
-    settings = SearchSettings()
-    aware = _level_graph(X, values, settings, 4)
-    every = np.ones(6)
-    got = _second_looks(
-        X, loss, discovery, every, values, aware, settings, random_state=4, executor=None
-    )
-    assert got[0] is every and got[1] is values and got[2] is aware
-    assert got[3:] == (None, None)
+    fits = []
+
+    def every_feature(X, loss, discovery, settings, *, n_repeats, random_state):
+        fits.append(n_repeats)
+        return np.ones(X.shape[1]), np.zeros(X.shape[1])
+
+    monkeypatch.setattr(search, "_chosen_features", every_feature)
+    settings = search.SearchSettings()
+    lens = search.error_lens(X, [loss], discovery, settings, random_state=4)
+    assert len(fits) == 1
+    assert lens.rest_weights is None and lens.rest_values is None
+    k = settings.k(int(discovery.sum()))
+    assert np.array_equal(lens.values, search.smoothed_excess(X, loss, discovery, k))
 
 
 def _aware_lens(X, weights, loss, discovery, settings, seed: int):

@@ -401,17 +401,30 @@ def _error_lens(
     along = smoothed_excess(X @ direction[:, None], total, discovery, k, executor=executor)
     with threadpool_limits(limits=1, user_api="openmp"):
         aware = _level_graph(Z, values, settings, random_state)
-    weights, values, aware, rest_weights, rest_values = _second_looks(
-        X,
-        total,
-        discovery,
-        weights,
-        values,
-        aware,
-        settings,
-        random_state=random_state,
-        executor=executor,
-    )
+    rest_weights = rest_values = None
+    # steps 4 and 5; neither when every feature was chosen (none stood out)
+    if not (weights > 0).all():
+        weights, values, aware, strongest = _refined_lens(
+            X,
+            total,
+            discovery,
+            weights,
+            values,
+            aware,
+            settings,
+            random_state=random_state,
+            executor=executor,
+        )
+        rest_weights, rest_values = _set_aside_lens(
+            X,
+            total,
+            discovery,
+            weights,
+            strongest,
+            settings,
+            random_state=random_state,
+            executor=executor,
+        )
     lens = ErrorLens(weights, importance, values, direction, along, rest_weights, rest_values)
     return lens, aware
 
@@ -470,48 +483,6 @@ def _level_graph(
         .fit(np.ascontiguousarray(Z))
         .graph_
     )
-
-
-def _second_looks(
-    X: np.ndarray,
-    loss: Losses,
-    discovery: np.ndarray,
-    weights: np.ndarray,
-    values: np.ndarray,
-    aware: MapperGraph,
-    settings: SearchSettings,
-    *,
-    random_state: int,
-    executor: Any,
-) -> tuple[np.ndarray, np.ndarray, MapperGraph, np.ndarray | None, np.ndarray | None]:
-    """Steps 4 and 5 of the error lens: the lens refined inside its strongest region,
-    then the region set aside; the weights, lens and graph (refined or as given) and the
-    set-aside weights and lens. Neither is done when every feature was chosen (none stood
-    out: there is no region to look into)."""
-    if (weights > 0).all():
-        return weights, values, aware, None, None
-    weights, values, aware, strongest = _refined_lens(
-        X,
-        loss,
-        discovery,
-        weights,
-        values,
-        aware,
-        settings,
-        random_state=random_state,
-        executor=executor,
-    )
-    rest_weights, rest_values = _set_aside_lens(
-        X,
-        loss,
-        discovery,
-        weights,
-        strongest,
-        settings,
-        random_state=random_state,
-        executor=executor,
-    )
-    return weights, values, aware, rest_weights, rest_values
 
 
 def _refined_lens(
