@@ -87,6 +87,23 @@ def _precision(results: list[dict[str, Any]]) -> float:
     return sum(precise) / len(precise) if precise else float("nan")
 
 
+def _timed(theirs: list[dict[str, Any]], mine: list[dict[str, Any]]) -> str:
+    """The search's time in two runs over the same settings, against the baselines' time
+    in each: the baselines' code is the same in every run, so their ratio measures the
+    machines, and the search's ratio over theirs its own cost on an equal machine."""
+    ours = [sum(r["seconds"] for r in rs) for rs in (theirs, mine)]
+    base = [sum(r[m]["seconds"] for r in rs for m in ("tree", "bin")) for rs in (theirs, mine)]
+    if min(ours + base) <= 0:
+        return "No time was recorded in one of the runs."
+    mine_ratio, base_ratio = ours[1] / ours[0], base[1] / base[0]
+    return (
+        f"Search time: {ours[0] / 60:.0f} min in that run, {ours[1] / 60:.0f} in this one "
+        f"({mine_ratio:.2f} times); the two baselines, the same code in both runs, took "
+        f"{base[0]:.0f} s and {base[1]:.0f} s ({base_ratio:.2f} times), so on an equal "
+        f"machine the search took {mine_ratio / base_ratio:.2f} times as long."
+    )
+
+
 def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label: str) -> list[str]:
     """topoaudit's recall per family and its null findings in another run of the grid
     (``other``, labelled ``label``) and in this one, over the settings both ran."""
@@ -107,6 +124,7 @@ def _compared(other: list[dict[str, Any]], results: list[dict[str, Any]], label:
     lines.append(f"| all | {len(new)} | {old.recovered.mean():.2f} | {new.recovered.mean():.2f} |")
     precision = [_precision(rs) for rs in (theirs, mine)]
     lines += ["", f"Precision: {precision[0]:.2f} in that run, {precision[1]:.2f} in this one."]
+    lines += ["", _timed(theirs, mine)]
     nulls = [sum(r["ours"]["found"] > 0 for r in rs if r["size"] == 0.0) for rs in (theirs, mine)]
     n_null = sum(r["size"] == 0.0 for r in mine)
     lines += [
