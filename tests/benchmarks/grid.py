@@ -53,13 +53,18 @@ RESULTS = HERE / "grid_results.jsonl"
 #: categorical family)
 OTHERS = (
     (
+        HERE / "grid_results_features_only.jsonl",
+        "the run before: the error-aware lens refined only where the strongest region's own "
+        "model added a feature, never at the region's scale alone",
+    ),
+    (
         HERE / "grid_results_last_width.jsonl",
-        "the run before: the slab climb returning the direction it reached at its thinnest "
-        "width, not the best of its widths",
+        "the run before that: the slab climb returning the direction it reached at its "
+        "thinnest width, not the best of its widths",
     ),
     (
         HERE / "grid_results_unrefined.jsonl",
-        "the run before that: the error-aware lens not refined inside its strongest region",
+        "an earlier run: the error-aware lens not refined inside its strongest region",
     ),
     (
         HERE / "grid_results_four_graphs.jsonl",

@@ -54,13 +54,16 @@ The error-aware lens is made in three steps, all from discovery labels only:
    alike, the excess still varies with what the scores promised, and the features behind
    the scores would split a uniform pocket by it (measured on the grid's islands, which
    this split into two to four regions); the observed loss varies there only where some
-   rows err more often than others. When it keeps features that step 1 did not (and not
-   every feature), the lens is smoothed again in the space of both, with ``k`` a
+   rows err more often than others. The lens is smoothed again, with ``k`` a
    ``REFINE_SHARE``-th of that region's discovery rows (at least 30, at most the
-   search's own ``k``, so a pocket smaller than ``k`` rows is not averaged away). The
-   refined lens replaces the first only when its own strongest candidate has a larger
-   scan statistic on the discovery half than the first's; the confirmation half never
-   takes part.
+   search's own ``k``, so a pocket smaller than ``k`` rows is not averaged away), in the
+   space of step 1's features and those the local model keeps besides (none added when
+   it keeps every feature or the two together would); when neither the features nor
+   ``k`` change, nothing is refined. A thin pocket whose features step 1 chose is still
+   blurred by the search's own ``k`` (measured on the grid's 1% arc in 100,000 rows:
+   Jaccard 0.47 at ``k`` = 300, 0.72 refined). The refined lens replaces the first only
+   when its own strongest candidate has a larger scan statistic on the discovery half
+   than the first's; the confirmation half never takes part.
 
 The strongest region set aside for the ``set_aside`` graph is the error-aware graph's
 strongest candidate on the discovery half (the upper level set with the largest scan
@@ -511,10 +514,13 @@ def _refined_lens(
         X, observed, kept[3], settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
     )
     joined = np.maximum(weights, local)
-    if (local > 0).all() or np.array_equal(joined, weights) or (joined > 0).all():
+    if (local > 0).all() or (joined > 0).all():
+        joined = weights  # none stood out inside, or every feature would: scale alone
+    own_k = settings.k(int(discovery.sum()))
+    k = int(np.clip(inside // REFINE_SHARE, 30, own_k))
+    if np.array_equal(joined, weights) and k == own_k:
         return kept
     Z = np.ascontiguousarray(X[:, joined > 0])
-    k = int(np.clip(inside // REFINE_SHARE, 30, settings.k(int(discovery.sum()))))
     refined = smoothed_excess(Z, loss, discovery, k, executor=executor)
     with threadpool_limits(limits=1, user_api="openmp"):
         graph = _level_graph(Z, refined, settings, random_state)
