@@ -105,6 +105,25 @@ def _aware_lens(X, weights, loss, discovery, settings, seed: int):
     return values, _level_graph(Z, values, settings, seed)
 
 
+def _region_scores(loss, discovery, pocket):
+    """Kulldorff's (1997) Poisson log-likelihood ratio of a region's discovery rows,
+    computed here from the region's own sums (expected loss rescaled to the half's
+    observed total), and its Jaccard index with the pocket's discovery rows."""
+    from topoaudit.audit.weak import _scaled
+
+    obs, exp, total = _scaled(loss, discovery)
+    inside = pocket & discovery
+
+    def kulldorff(mask: np.ndarray) -> float:
+        o, e = obs[mask].sum(), exp[mask].sum()
+        return o * np.log(o / e) + (total - o) * np.log((total - o) / (total - e))
+
+    def jaccard(mask: np.ndarray) -> float:
+        return (mask & inside).sum() / (mask | inside).sum()
+
+    return kulldorff, jaccard
+
+
 def _curved_search_inputs(seed: int):
     from reference_checks.planted_pockets import simulate
     from topoaudit.audit.weak import binary_losses, split_halves
@@ -123,7 +142,6 @@ def test_a_feature_that_matters_only_inside_the_strongest_region_joins_the_lens(
     # ratio (computed here from the region's own sums) and overlaps the arc more
     # (Jaccard index). Planted pocket: common practice in simulation studies, no source.
     from topoaudit.audit.search import SearchSettings, _refined_lens, strongest_rows
-    from topoaudit.audit.weak import _scaled
 
     sim, X, loss, discovery = _curved_search_inputs(3)
     settings = SearchSettings()
@@ -133,16 +151,7 @@ def test_a_feature_that_matters_only_inside_the_strongest_region_joins_the_lens(
         X, loss, discovery, weights, values, aware, settings, random_state=3, executor=None
     )
     assert got_w[[0, 1, 2]].tolist() == [1.0, 1.0, 1.0]
-    obs, exp, total = _scaled(loss, discovery)
-
-    def kulldorff(mask: np.ndarray) -> float:
-        o, e = obs[mask].sum(), exp[mask].sum()
-        return o * np.log(o / e) + (total - o) * np.log((total - o) / (total - e))
-
-    def jaccard(mask: np.ndarray) -> float:
-        pocket = sim.pocket & discovery
-        return (mask & pocket).sum() / (mask | pocket).sum()
-
+    kulldorff, jaccard = _region_scores(loss, discovery, sim.pocket)
     before = strongest_rows(aware, values, loss, discovery)
     after = strongest_rows(got_graph, got_v, loss, discovery)
     assert np.array_equal(got_rows, after)
@@ -175,17 +184,7 @@ def test_a_thin_pocket_in_the_chosen_features_is_smoothed_again_at_its_own_scale
         X, loss, discovery, weights, values, aware, settings, random_state=1, executor=None
     )
     assert got_w.tolist() == weights.tolist() and got_v is not values
-    total = observed[discovery].sum()
-    expected = np.where(discovery, 0.12 * total / (0.12 * discovery.sum()), 0.0)
-
-    def kulldorff(mask: np.ndarray) -> float:
-        o, e = observed[mask].sum(), expected[mask].sum()
-        return o * np.log(o / e) + (total - o) * np.log((total - o) / (total - e))
-
-    def jaccard(mask: np.ndarray) -> float:
-        inside = pocket & discovery
-        return (mask & inside).sum() / (mask | inside).sum()
-
+    kulldorff, jaccard = _region_scores(loss, discovery, pocket)
     before = strongest_rows(aware, values, loss, discovery)
     assert np.array_equal(got_rows, strongest_rows(got_graph, got_v, loss, discovery))
     assert kulldorff(got_rows) > kulldorff(before)

@@ -108,10 +108,10 @@ def _refine(
     with the largest :func:`slab_statistic`, and that statistic: widths thinner than the
     slab chase the noise inside it and can tilt the direction off the slab."""
     r, v = observed - expected, expected
-    best_w, best = w, slab_statistic(X @ w, observed, expected)
+    t = X @ w  # kept in step with w: a kept step carries its projection on
+    best_w, best = w, slab_statistic(t, observed, expected)
     for h in WIDTHS:
         eta = 0.2
-        t = X @ w
         c = _centre(t, r, v, h)
         for _ in range(iterations):
             u = (t - c) / h

@@ -504,14 +504,15 @@ def _refined_lens(
     the lens as given when nothing is refined, with the mask of the discovery rows of the
     strongest region of the lens returned."""
     found = _strongest(aware, values, loss, discovery)
-    kept = (weights, values, aware, _rows_of(found, discovery.size))
+    strongest = _rows_of(found, discovery.size)
+    kept = (weights, values, aware, strongest)
     if found is None or found.rows.size < REFINE_MIN_ROWS:
         return kept
     inside = int(found.rows.size)
     # inside the region, the observed loss alone (centred) is the response: see step 4
     observed = Losses(loss.kind, loss.observed, np.ones_like(loss.expected), loss.counts)
     local, _ = _chosen_features(
-        X, observed, kept[3], settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
+        X, observed, strongest, settings, n_repeats=SET_ASIDE_REPEATS, random_state=random_state
     )
     joined = np.maximum(weights, local)
     if (local > 0).all() or (joined > 0).all():
