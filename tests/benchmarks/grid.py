@@ -44,7 +44,8 @@ from tests.benchmarks.grid_sim import FAMILIES, plant
 
 HERE = Path(__file__).resolve().parent
 RESULTS = HERE / "grid_results.jsonl"
-#: other runs this one is compared with, newest first: the run before the error-aware graph
+#: other runs this one is compared with, newest first: the run before the slab was also
+#: climbed from pair planes, the run before the error-aware graph
 #: was built once and nothing was set aside when every feature was chosen, the run before
 #: the set-aside graph, the run before regions seen through a wider window were named as
 #: found again, the run before the slab graph was searched, and an attempt measured and not
@@ -53,13 +54,18 @@ RESULTS = HERE / "grid_results.jsonl"
 #: categorical family)
 OTHERS = (
     (
+        HERE / "grid_results_hessian_starts.jsonl",
+        "the run before: the slab climbed from principal Hessian directions only, not also "
+        "from the best directions in the planes of two features",
+    ),
+    (
         HERE / "grid_results_features_only.jsonl",
-        "the run before: the error-aware lens refined only where the strongest region's own "
-        "model added a feature, never at the region's scale alone",
+        "the run before that: the error-aware lens refined only where the strongest region's "
+        "own model added a feature, never at the region's scale alone",
     ),
     (
         HERE / "grid_results_last_width.jsonl",
-        "the run before that: the slab climb returning the direction it reached at its "
+        "an earlier run: the slab climb returning the direction it reached at its "
         "thinnest width, not the best of its widths",
     ),
     (
