@@ -11,7 +11,10 @@ The direction is found from discovery labels only, in three steps:
    row's excess loss (observed minus rescaled expected) and ``x`` its standardised
    features. A slab of excess across direction ``w`` near the bulk leaves a negative
    eigenvalue along ``w`` (the rows of excess lie closer to a hyperplane than the rest):
-   the three lowest and the highest eigenvalues give the starting directions.
+   the three lowest and the highest eigenvalues give starting directions. So do the
+   :data:`PAIR_STARTS` best directions in the planes of two features
+   (:func:`pair_directions`): a thin slab is too thin for second moments, but one whose
+   direction lies mostly in two features shows, a little blurred, in their plane.
 2. **Climbing**: from each start, normalised gradient steps on the unit sphere raise a
    smooth slab score (the Gaussian-weighted excess around a centre over the square root
    of the weighted expected loss), its width narrowing from 0.6 to 0.025 standard
@@ -19,7 +22,10 @@ The direction is found from discovery labels only, in three steps:
    not lost at the start, and the thin ones then sharpen it. Widths thinner than the
    slab chase the noise inside it and can tilt the direction off it, so the climb
    returns, of its start and the direction it reached at each width, the one with the
-   largest statistic of step 3.
+   largest statistic of step 3. From a pair's direction the climb keeps to thin widths
+   (:data:`FINE_WIDTHS`) with steps of about half the width: the wide ones would carry
+   it off a start that is already close, and so would steps longer than the slab is
+   thick.
 3. Of the climbed directions, the one with the largest scan statistic (Kulldorff's
    Poisson log-likelihood ratio) of a window of consecutive discovery rows along it,
    over windows of 1% to 15% of the rows, is kept.
@@ -41,6 +47,7 @@ __all__ = [
     "SLAB_SHARES",
     "carrying_features",
     "hessian_directions",
+    "pair_directions",
     "slab_direction",
     "slab_inputs",
     "slab_statistic",
