@@ -165,3 +165,34 @@ def test_a_thin_slab_mostly_in_two_features_is_reached_from_their_plane():
     found, statistic = slab_direction(X, Losses("error", observed, expected), discovery)
     assert abs(found @ w) > 0.99
     assert statistic > 60
+
+
+def test_wide_data_scans_the_pairs_of_the_columns_most_involved_only(monkeypatch):
+    # the cap on the pair scan: with more columns than PAIR_MAX_FEATURES, the columns
+    # scanned are those with the largest rows of the Hessian matrix (its Frobenius row
+    # norms, checked against numpy on the matrix itself)
+    import topoaudit.audit.oblique as oblique
+
+    rng = np.random.default_rng(13)
+    n, p = 3000, 12
+    X = rng.normal(size=(n, p))
+    expected = np.full(n, 0.2)
+    observed = (rng.random(n) < np.where(np.abs(X[:, 4] + X[:, 7]) < 0.1, 0.7, 0.2)) * 1.0
+    discovery = np.ones(n, bool)
+    seen = {}
+
+    def spy(X, observed, expected, keep, columns=None):
+        seen["columns"] = columns
+        return []
+
+    monkeypatch.setattr(oblique, "pair_directions", spy)
+    monkeypatch.setattr(oblique, "PAIR_MAX_FEATURES", 5)
+    oblique.slab_direction(X, Losses("error", observed, expected), discovery)
+    Xd, o, e = oblique.slab_inputs(X, Losses("error", observed, expected), discovery, 50_000, 0)
+    Xc = Xd - Xd.mean(axis=0)
+    M = (Xc * (o - e)[:, None]).T @ Xc / n
+    top = np.argsort(-np.linalg.norm(M, axis=1))[:5]
+    assert sorted(seen["columns"].tolist()) == sorted(top.tolist())
+    monkeypatch.setattr(oblique, "PAIR_MAX_FEATURES", 64)
+    oblique.slab_direction(X, Losses("error", observed, expected), discovery)
+    assert sorted(seen["columns"].tolist()) == list(range(p))

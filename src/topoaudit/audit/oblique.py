@@ -162,17 +162,26 @@ PAIR_WINDOWS = (2, 3, 4, 6, 8)
 FINE_WIDTHS = (0.1, 0.06, 0.04, 0.025)
 #: pair directions climbed, best first
 PAIR_STARTS = 12
+#: the most columns whose pairs are scanned (wider data: see :func:`slab_direction`)
+PAIR_MAX_FEATURES = 64
 
 
 def pair_directions(
-    X: np.ndarray, observed: np.ndarray, expected: np.ndarray, keep: int
+    X: np.ndarray,
+    observed: np.ndarray,
+    expected: np.ndarray,
+    keep: int,
+    columns: np.ndarray | None = None,
 ) -> list[np.ndarray]:
     """The ``keep`` best directions in the planes of two features, by a binned slab
     statistic: each pair's standardised values are binned on a grid of
     :data:`PAIR_BINS` squared bins over ``+-PAIR_RANGE``, the grid's bins projected at
     :data:`PAIR_ANGLES` angles onto bins :data:`PAIR_STEP` wide, and Kulldorff's LLR
     taken over windows of :data:`PAIR_WINDOWS` consecutive bins; each pair offers its
-    best angle. Returned as unit directions in the columns of ``X``, best first.
+    best angle. Only pairs of ``columns`` are scanned when given (all by default).
+    Returned as unit directions in the columns of ``X``, best first. The cost grows with
+    the square of the columns scanned: about 2 s for 50 columns of 50,000 rows, 9 s for
+    100 and 37 s for 200 (measured on 2 cores).
 
     A projection pursuit restricted to planes of two features (common practice, no
     source): an oblique slab whose direction lies mostly in two features is seen, a
@@ -194,8 +203,9 @@ def pair_directions(
     ).ravel()
     total = float(observed.sum())
     scored: list[tuple[float, int, int, float]] = []
-    for i in range(p):
-        for j in range(i + 1, p):
+    scanned = np.arange(p) if columns is None else np.sort(np.asarray(columns))
+    for a, i in enumerate(scanned):
+        for j in scanned[a + 1 :]:
             code = b[:, i] * PAIR_BINS + b[:, j]
             sums = []
             for values in (observed, expected):
@@ -250,15 +260,24 @@ def slab_direction(
     excess gathers most in a slab, and its slab statistic (see the module docstring).
 
     At most ``max_rows`` discovery rows (a seeded sample) are used, which bounds the cost
-    of each step on large data."""
+    of each step on large data. With more than :data:`PAIR_MAX_FEATURES` columns, the
+    pair planes are scanned among that many only: those with the largest rows of the
+    Hessian matrix (the root of the sum of squared entries), the columns most involved in
+    the excess's second moments; a slab across other columns is then left to the
+    Hessian starts."""
     Xd, observed, expected = slab_inputs(X, loss, discovery, max_rows, random_state)
-    _, vectors = hessian_directions(Xd, observed - expected)
+    values, vectors = hessian_directions(Xd, observed - expected)
     p = Xd.shape[1]
     best_w, best = vectors[:, 0], -1.0
     climbs = [(vectors[:, j], {}) for j in sorted({0, min(1, p - 1), min(2, p - 1), p - 1})]
     if p > 1:
         fine = {"widths": FINE_WIDTHS, "step": 0.5}
-        climbs += [(w, fine) for w in pair_directions(Xd, observed, expected, PAIR_STARTS)]
+        # wide data: the pairs of the columns most involved in the excess's second
+        # moments (the largest rows of the Hessian matrix), which bounds the scan's cost
+        involved = np.sqrt((vectors**2) @ (values**2))
+        columns = np.argsort(-involved, kind="stable")[:PAIR_MAX_FEATURES]
+        starts = pair_directions(Xd, observed, expected, PAIR_STARTS, columns)
+        climbs += [(w, fine) for w in starts]
     for start, how in climbs:
         w, value = _refine(Xd, observed, expected, start, **how)
         if value > best:
