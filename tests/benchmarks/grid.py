@@ -44,14 +44,9 @@ from tests.benchmarks.grid_sim import FAMILIES, plant
 
 HERE = Path(__file__).resolve().parent
 RESULTS = HERE / "grid_results.jsonl"
-#: other runs this one is compared with, newest first: the run before the slab was also
-#: climbed from pair planes, the run before the error-aware graph
-#: was built once and nothing was set aside when every feature was chosen, the run before
-#: the set-aside graph, the run before regions seen through a wider window were named as
-#: found again, the run before the slab graph was searched, and an attempt measured and not
-#: kept (the error lens's neighbourhoods shaped twice by the outer product of its gradients,
-#: Xia, Tong, Li and Zhu, 2002; it stopped after 108 settings on a singular local fit in the
-#: categorical family)
+#: other runs this one is compared with, newest first, each described beside its file
+#: (the last is an attempt measured and not kept: it stopped after 108 settings on a
+#: singular local fit in the categorical family)
 OTHERS = (
     (
         HERE / "grid_results_hessian_starts.jsonl",
