@@ -30,6 +30,21 @@ def _whitened(n: int, p: int, seed: int) -> np.ndarray:
     return X @ np.linalg.inv(L).T
 
 
+def _planted_slab(rng, n, p, weights, centre, share, inside, outside):
+    """Standard-normal rows, a slab of ``share`` of them closest to ``centre`` along the
+    unit direction of ``weights`` (a column -> weight mapping), and errors drawn at rate
+    ``inside`` in it and ``outside`` elsewhere, which is also what the rows expected."""
+    X = rng.normal(size=(n, p))
+    w = np.zeros(p)
+    w[list(weights)] = list(weights.values())
+    w /= np.linalg.norm(w)
+    gap = np.abs(X @ w - centre)
+    slab = gap <= np.quantile(gap, share)
+    expected = np.full(n, outside)
+    observed = (rng.random(n) < np.where(slab, inside, outside)).astype(float)
+    return X, w, observed, expected
+
+
 def test_hessian_directions_match_statsmodels_on_whitened_rows():
     X = _whitened(3000, 5, 0)
     rng = np.random.default_rng(1)
@@ -75,14 +90,10 @@ def test_slab_statistic_is_the_largest_window_scan_of_consecutive_rows():
 def test_slab_direction_recovers_a_slab_across_three_features():
     # common practice, no source: a planted slab whose direction is known
     rng = np.random.default_rng(4)
-    n, p = 8000, 6
-    X = rng.normal(size=(n, p))
-    w = np.array([0.0, 0.7, 0.0, -0.5, 0.5, 0.0])
-    w /= np.linalg.norm(w)
-    gap = np.abs(X @ w - 0.2)
-    slab = gap <= np.quantile(gap, 0.08)
-    expected = np.full(n, 0.2)
-    observed = (rng.random(n) < np.where(slab, 0.6, 0.2)).astype(float)
+    n = 8000
+    X, w, observed, expected = _planted_slab(
+        rng, n, 6, {1: 0.7, 3: -0.5, 4: 0.5}, 0.2, 0.08, 0.6, 0.2
+    )
     discovery = rng.random(n) < 0.5
     found, statistic = slab_direction(X, Losses("error", observed, expected), discovery)
     assert abs(found @ w) > 0.98
@@ -97,15 +108,9 @@ def test_a_climb_started_on_a_thin_slab_does_not_tilt_off_it():
     from topoaudit.audit.oblique import _refine
 
     rng = np.random.default_rng(11)
-    n, p = 12_000, 10
-    X = rng.normal(size=(n, p))
-    w = np.zeros(p)
-    w[[1, 4, 7]] = [0.6, -0.6, 0.5]
-    w /= np.linalg.norm(w)
-    gap = np.abs(X @ w - 0.1)
-    slab = gap <= np.quantile(gap, 0.01)
-    expected = np.full(n, 0.15)
-    observed = (rng.random(n) < np.where(slab, 0.6, 0.15)).astype(float)
+    X, w, observed, expected = _planted_slab(
+        rng, 12_000, 10, {1: 0.6, 4: -0.6, 7: 0.5}, 0.1, 0.01, 0.6, 0.15
+    )
     Xc = X - X.mean(axis=0)
     start = slab_statistic(Xc @ w, observed, expected)
     found, statistic = _refine(Xc, observed, expected, w)
@@ -121,14 +126,8 @@ def test_pair_directions_put_a_slab_in_the_plane_of_two_features_first():
     from topoaudit.audit.oblique import pair_directions
 
     rng = np.random.default_rng(12)
-    n, p = 10_000, 8
-    X = rng.normal(size=(n, p))
-    w = np.zeros(p)
-    w[[3, 6]] = [np.cos(1.0), np.sin(1.0)]
-    gap = np.abs(X @ w - 0.3)
-    slab = gap <= np.quantile(gap, 0.04)
-    expected = np.full(n, 0.2)
-    observed = (rng.random(n) < np.where(slab, 0.6, 0.2)).astype(float)
+    pair = {3: np.cos(1.0), 6: np.sin(1.0)}
+    X, w, observed, expected = _planted_slab(rng, 10_000, 8, pair, 0.3, 0.04, 0.6, 0.2)
     found = pair_directions(X * 2.0, observed, expected, keep=3)  # any scale per column
     assert len(found) == 3
     assert abs(found[0] @ w) > 0.999
@@ -145,14 +144,8 @@ def test_a_thin_slab_mostly_in_two_features_is_reached_from_their_plane():
 
     rng = np.random.default_rng(7)
     n, p = 16_000, 15
-    X = rng.normal(size=(n, p))
-    w = np.zeros(p)
-    w[[2, 9, 12]] = [0.93, -0.34, 0.14]
-    w /= np.linalg.norm(w)
-    gap = np.abs(X @ w + 0.2)
-    slab = gap <= np.quantile(gap, 0.03)
-    expected = np.full(n, 0.15)
-    observed = (rng.random(n) < np.where(slab, 0.6, 0.15)).astype(float)
+    mostly_two = {2: 0.93, 9: -0.34, 12: 0.14}
+    X, w, observed, expected = _planted_slab(rng, n, p, mostly_two, -0.2, 0.03, 0.6, 0.15)
     discovery = rng.random(n) < 0.5
     Xc = X[discovery] - X[discovery].mean(axis=0)
     o, e = observed[discovery], expected[discovery]
