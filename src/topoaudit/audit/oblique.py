@@ -270,14 +270,13 @@ def slab_direction(
     p = Xd.shape[1]
     best_w, best = vectors[:, 0], -1.0
     climbs = [(vectors[:, j], {}) for j in sorted({0, min(1, p - 1), min(2, p - 1), p - 1})]
-    if p > 1:
-        fine = {"widths": FINE_WIDTHS, "step": 0.5}
-        # wide data: the pairs of the columns most involved in the excess's second
-        # moments (the largest rows of the Hessian matrix), which bounds the scan's cost
-        involved = np.sqrt((vectors**2) @ (values**2))
-        columns = np.argsort(-involved, kind="stable")[:PAIR_MAX_FEATURES]
-        starts = pair_directions(Xd, observed, expected, PAIR_STARTS, columns)
-        climbs += [(w, fine) for w in starts]
+    # wide data: the pairs of the columns most involved in the excess's second moments
+    # (the largest rows of the Hessian matrix), which bounds the scan's cost; a single
+    # column has no pair
+    involved = np.sqrt((vectors**2) @ (values**2))
+    columns = np.argsort(-involved, kind="stable")[:PAIR_MAX_FEATURES]
+    fine = {"widths": FINE_WIDTHS, "step": 0.5}
+    climbs += [(w, fine) for w in pair_directions(Xd, observed, expected, PAIR_STARTS, columns)]
     for start, how in climbs:
         w, value = _refine(Xd, observed, expected, start, **how)
         if value > best:
